@@ -1,0 +1,39 @@
+package api
+
+import (
+	"github.com/labstack/echo/v4"
+
+	"halfmark"
+)
+
+// routes lists every API route in one place.
+func (h *handlers) routes(e *echo.Echo) {
+	e.GET("/healthz", h.healthz)
+	e.GET("/readyz", h.readyz)
+	e.GET("/api/v1/openapi.yaml", h.openapi)
+
+	v1 := e.Group("/api/v1", h.authenticate)
+	therapist, physicist, admin := need(halfmark.RoleTherapist), need(halfmark.RolePhysicist), need(halfmark.RoleAdmin)
+
+	v1.GET("/machines", h.listMachines, therapist)
+	v1.POST("/machines", h.createMachine, admin)
+	v1.GET("/machines/:id", h.getMachine, therapist)
+	v1.GET("/machines/:id/beams", h.listBeams, therapist)
+	v1.POST("/machines/:id/beams", h.createBeam, admin)
+	v1.GET("/machines/:id/series", h.machineSeries, therapist)
+
+	v1.POST("/checks", h.createCheck, therapist)
+	v1.POST("/checks/batch", h.createBatch, therapist)
+	v1.GET("/checks", h.listChecks, therapist)
+	v1.GET("/checks/:id", h.getCheck, therapist)
+
+	v1.GET("/series/:id", h.getSeries, therapist)
+	v1.GET("/series/:id/points", h.seriesPoints, therapist)
+	v1.GET("/series/:id/baselines", h.listBaselines, therapist)
+	v1.POST("/series/:id/baselines", h.setBaseline, physicist)
+
+	v1.GET("/tokens", h.listTokens, admin)
+	v1.POST("/tokens", h.createToken, admin)
+	v1.DELETE("/tokens/:id", h.revokeToken, admin)
+	v1.GET("/audit", h.listAudit, physicist)
+}

@@ -1,0 +1,45 @@
+// Package api serves Halfmark's JSON API under /api/v1 with echo v4:
+// bearer-token authentication, role checks, RFC 9457 problem bodies and
+// the OpenAPI document.
+package api
+
+import (
+	"log/slog"
+	"time"
+
+	"github.com/labstack/echo/v4"
+
+	"halfmark"
+)
+
+// Services are what the API needs; db.DB implements all of them.
+type Services struct {
+	Machines halfmark.MachineService
+	Checks   halfmark.CheckService
+	Series   halfmark.SeriesService
+	Auth     halfmark.AuthService
+	Audit    halfmark.AuditService
+	Pinger   halfmark.Pinger
+	Log      *slog.Logger
+	Now      func() time.Time
+}
+
+// New returns an echo server with the error handler and the API routes.
+// Other packages (the dashboard) add their routes to the same server.
+func New(s Services) *echo.Echo {
+	if s.Log == nil {
+		s.Log = slog.Default()
+	}
+	if s.Now == nil {
+		s.Now = time.Now
+	}
+	e := echo.New()
+	e.HideBanner = true
+	e.HidePort = true
+	e.HTTPErrorHandler = ErrorHandler(s.Log)
+	h := &handlers{s: s}
+	h.routes(e)
+	return e
+}
+
+type handlers struct{ s Services }
