@@ -2,6 +2,7 @@ package db
 
 import (
 	"context"
+	"encoding/json"
 	"fmt"
 	"strings"
 	"time"
@@ -112,6 +113,7 @@ func (d *DB) record(ctx context.Context, a halfmark.Actor, cs []halfmark.Check, 
 		mach, beam                               []int64
 		at                                       []time.Time
 		ssd, depth, fx, fy, col, gan             []*float64
+		edges                                    [][]byte
 	}{}
 	for i := range cs {
 		c := &cs[i]
@@ -138,19 +140,24 @@ func (d *DB) record(ctx context.Context, a halfmark.Actor, cs []halfmark.Check, 
 		cols.fy = append(cols.fy, s.FieldYcm)
 		cols.col = append(cols.col, s.CollimatorDeg)
 		cols.gan = append(cols.gan, s.GantryDeg)
+		ej, err := json.Marshal(c.Edges)
+		if err != nil {
+			return halfmark.BatchResult{}, err
+		}
+		cols.edges = append(cols.edges, ej)
 	}
 	err := d.tx(ctx, func(tx pgx.Tx) error {
 		rows, err := tx.Query(ctx, `INSERT INTO checks (id, supersedes, body_hash, kind, device, operator, note, geometry,
-				machine_id, beam_id, measured_at, ssd_cm, depth_cm, field_x_cm, field_y_cm, collimator_deg, gantry_deg, created_by)
+				machine_id, beam_id, measured_at, ssd_cm, depth_cm, field_x_cm, field_y_cm, collimator_deg, gantry_deg, edges, created_by)
 			SELECT u.id, NULLIF(u.sup,'')::uuid, u.hash, u.kind, u.dev, u.op, u.note, u.geom, u.mach, u.beam, u.at,
-				u.ssd, u.depth, u.fx, u.fy, u.col, u.gan, $18
+				u.ssd, u.depth, u.fx, u.fy, u.col, u.gan, u.edges, $19
 			FROM unnest($1::uuid[], $2::text[], $3::text[], $4::text[], $5::text[], $6::text[], $7::text[], $8::text[],
 				$9::bigint[], $10::bigint[], $11::timestamptz[], $12::float8[], $13::float8[], $14::float8[], $15::float8[],
-				$16::float8[], $17::float8[])
-				AS u(id, sup, hash, kind, dev, op, note, geom, mach, beam, at, ssd, depth, fx, fy, col, gan)
+				$16::float8[], $17::float8[], $18::jsonb[])
+				AS u(id, sup, hash, kind, dev, op, note, geom, mach, beam, at, ssd, depth, fx, fy, col, gan, edges)
 			ON CONFLICT (id) DO NOTHING RETURNING id::text`,
 			cols.id, cols.sup, cols.hash, cols.kind, cols.dev, cols.op, cols.note, cols.geom, cols.mach, cols.beam, cols.at,
-			cols.ssd, cols.depth, cols.fx, cols.fy, cols.col, cols.gan, a.Name)
+			cols.ssd, cols.depth, cols.fx, cols.fy, cols.col, cols.gan, cols.edges, a.Name)
 		if err != nil {
 			return supersedeErr(err)
 		}
@@ -175,11 +182,6 @@ func (d *DB) record(ctx context.Context, a halfmark.Actor, cs []halfmark.Check, 
 		if err := upsertSeries(ctx, tx, cs, isNew); err != nil {
 			return err
 		}
-		if _, err := tx.CopyFrom(ctx, pgx.Identifier{"edge_results"},
-			[]string{"check_id", "edge", "position_mm", "iso_position_mm", "penumbra_mm", "light_position_mm", "iso_light_position_mm"},
-			&edgeRows{cs: cs, isNew: isNew}); err != nil {
-			return err
-		}
 		auditRows := make([][]any, 0, res.Created)
 		for i := range cs {
 			c := &cs[i]
@@ -190,8 +192,9 @@ func (d *DB) record(ctx context.Context, a halfmark.Actor, cs []halfmark.Check, 
 			if c.Supersedes != "" {
 				action = "correct"
 			}
-			auditRows = append(auditRows, []any{a.Name, action, "check", c.ID, map[string]any{
-				"machine_id": c.MachineID, "beam_id": c.BeamID, "kind": c.Kind, "edges": len(c.Edges), "supersedes": c.Supersedes}})
+			detail := fmt.Appendf(nil, `{"machine_id":%d,"beam_id":%d,"kind":%q,"edges":%d,"supersedes":%q}`,
+				c.MachineID, c.BeamID, c.Kind, len(c.Edges), c.Supersedes)
+			auditRows = append(auditRows, []any{a.Name, action, "check", c.ID, detail})
 		}
 		_, err = tx.CopyFrom(ctx, pgx.Identifier{"audit_log"}, []string{"actor", "action", "entity", "entity_id", "detail"},
 			pgx.CopyFromRows(auditRows))
@@ -280,29 +283,3 @@ func upsertSeries(ctx context.Context, tx pgx.Tx, cs []halfmark.Check, isNew map
 		ORDER BY 1, 2, 3, 4, 5 ON CONFLICT DO NOTHING`, ms, bs, gs, es, qs)
 	return err
 }
-
-// edgeRows streams the new checks' edge results to COPY.
-type edgeRows struct {
-	cs    []halfmark.Check
-	isNew map[string]bool
-	i, j  int
-	row   []any
-}
-
-func (r *edgeRows) Next() bool {
-	for r.i < len(r.cs) {
-		c := &r.cs[r.i]
-		if r.isNew[c.ID] && r.j < len(c.Edges) {
-			e := &c.Edges[r.j]
-			r.j++
-			r.row = []any{c.ID, e.Edge, e.PositionMM, e.IsoPositionMM, e.PenumbraMM, e.LightPositionMM, e.IsoLightPositionMM}
-			return true
-		}
-		r.i++
-		r.j = 0
-	}
-	return false
-}
-
-func (r *edgeRows) Values() ([]any, error) { return r.row, nil }
-func (r *edgeRows) Err() error             { return nil }

@@ -1,6 +1,6 @@
 -- +goose Up
--- The edge-measurement store. Checks, edge results, baselines and the
--- audit log are append-only: a correction is a new row that supersedes
+-- The edge-measurement store. Checks (with their edge results), baselines
+-- and the audit log are append-only: a correction is a new row that supersedes
 -- the old one; triggers refuse UPDATE and DELETE on them.
 
 CREATE TABLE machines (
@@ -43,6 +43,11 @@ CREATE TABLE checks (
     gantry_deg       double precision,
     geometry         text NOT NULL,
     supersedes       uuid UNIQUE REFERENCES checks(id),
+    -- The edge results, kept with their check so that a check and its
+    -- edges are one immutable record: [{"edge": "X1", "position_mm": 55.1,
+    -- "iso_position_mm": 50.09, "penumbra_mm": 3.2, "light_position_mm": …,
+    -- "iso_light_position_mm": …}, …]
+    edges            jsonb NOT NULL CHECK (jsonb_typeof(edges) = 'array'),
     body_hash        text NOT NULL,
     analysis_version text NOT NULL DEFAULT '',
     created_at       timestamptz NOT NULL DEFAULT now(),
@@ -50,18 +55,6 @@ CREATE TABLE checks (
 );
 CREATE INDEX checks_machine_time ON checks (machine_id, measured_at);
 CREATE INDEX checks_series ON checks (beam_id, geometry, measured_at);
-
-CREATE TABLE edge_results (
-    id                    bigserial PRIMARY KEY,
-    check_id              uuid NOT NULL REFERENCES checks(id),
-    edge                  text NOT NULL,
-    position_mm           double precision NOT NULL,
-    iso_position_mm       double precision NOT NULL,
-    penumbra_mm           double precision CHECK (penumbra_mm >= 0),
-    light_position_mm     double precision,
-    iso_light_position_mm double precision,
-    UNIQUE (check_id, edge)
-);
 
 CREATE TABLE series (
     id         bigserial PRIMARY KEY,
@@ -85,8 +78,10 @@ SELECT s.id AS series_id, c.id AS check_id, c.measured_at, c.created_at, c.kind,
        END AS value
 FROM series s
 JOIN checks c ON c.machine_id = s.machine_id AND c.beam_id = s.beam_id AND c.geometry = s.geometry
-JOIN edge_results er ON er.check_id = c.id AND er.edge = s.edge
-WHERE NOT EXISTS (SELECT 1 FROM checks x WHERE x.supersedes = c.id)
+CROSS JOIN LATERAL jsonb_to_recordset(c.edges)
+    AS er(edge text, iso_position_mm float8, penumbra_mm float8, iso_light_position_mm float8)
+WHERE er.edge = s.edge
+  AND NOT EXISTS (SELECT 1 FROM checks x WHERE x.supersedes = c.id)
   AND CASE s.quantity
           WHEN 'position' THEN true
           WHEN 'penumbra' THEN er.penumbra_mm IS NOT NULL
@@ -139,12 +134,11 @@ $$;
 
 CREATE TRIGGER audit_log_append_only BEFORE UPDATE OR DELETE ON audit_log FOR EACH ROW EXECUTE FUNCTION halfmark_refuse_change();
 CREATE TRIGGER checks_append_only BEFORE UPDATE OR DELETE ON checks FOR EACH ROW EXECUTE FUNCTION halfmark_refuse_change();
-CREATE TRIGGER edge_results_append_only BEFORE UPDATE OR DELETE ON edge_results FOR EACH ROW EXECUTE FUNCTION halfmark_refuse_change();
 CREATE TRIGGER baselines_append_only BEFORE UPDATE OR DELETE ON baselines FOR EACH ROW EXECUTE FUNCTION halfmark_refuse_change();
 CREATE TRIGGER audit_log_no_truncate BEFORE TRUNCATE ON audit_log FOR EACH STATEMENT EXECUTE FUNCTION halfmark_refuse_change();
 CREATE TRIGGER checks_no_truncate BEFORE TRUNCATE ON checks FOR EACH STATEMENT EXECUTE FUNCTION halfmark_refuse_change();
 
 -- +goose Down
 DROP VIEW series_points;
-DROP TABLE audit_log, tokens, baselines, series, edge_results, checks, beams, machines;
+DROP TABLE audit_log, tokens, baselines, series, checks, beams, machines;
 DROP FUNCTION halfmark_refuse_change();
