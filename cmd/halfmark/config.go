@@ -149,4 +149,3 @@ func (l logFlags) logger(w io.Writer) (*slog.Logger, error) {
 	}
 	return nil, exitUsage{fmt.Errorf("--log-format %q: use text or json", l.format)}
 }
-
