@@ -32,6 +32,10 @@ func (h *handlers) routes(e *echo.Echo) {
 	v1.GET("/series/:id/baselines", h.listBaselines, therapist)
 	v1.POST("/series/:id/baselines", h.setBaseline, physicist)
 
+	v1.POST("/analyze/profile", h.analyzeProfile, therapist)
+	v1.POST("/analyze/image", h.analyzeImage, therapist)
+	v1.POST("/analyze/picket", h.analyzePicket, therapist)
+
 	v1.GET("/tokens", h.listTokens, admin)
 	v1.POST("/tokens", h.createToken, admin)
 	v1.DELETE("/tokens/:id", h.revokeToken, admin)

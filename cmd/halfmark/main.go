@@ -43,6 +43,7 @@ func commands() []command {
 		{"migrate", "apply database migrations and exit", cmdMigrate},
 		{"token", "create, list or revoke API tokens: token create --name N --role R", cmdToken},
 		{"import", "import records: import checks FILE.csv", cmdImport},
+		{"analyze", "analyse raw data: analyze profile|image|picket FILE", cmdAnalyze},
 	}
 }
 
