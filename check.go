@@ -63,15 +63,6 @@ type Setup struct {
 // (no SSD and no depth given).
 func (s Setup) AtIsocentre() bool { return s.SSDcm == nil && s.DepthCm == nil }
 
-// SourceDistanceCm is the distance from the source to the measurement plane,
-// SSD + depth, in cm; sad when the setup is at the isocentre.
-func (s Setup) SourceDistanceCm(sadCm float64) float64 {
-	if s.AtIsocentre() {
-		return sadCm
-	}
-	return deref(s.SSDcm, sadCm) + deref(s.DepthCm, 0)
-}
-
 // Geometry is the series key part of a setup: nominal field, where it was
 // measured and the angles, e.g. "10×10 cm, iso" or
 // "20×20 cm, SSD 90 d 10, G 90". Positions are compared in the isocentre
@@ -243,18 +234,31 @@ func (s Setup) validate(f *Fields, p string) {
 	}
 }
 
-// Project sets each edge's isocentre-plane position from its measured one:
-// x_iso = x·SAD/(SSD + depth) (magnification, common practice).
-func (c *Check) Project(sadCm float64, project func(x, sadCm, distCm float64) float64) {
-	dist := c.Setup.SourceDistanceCm(sadCm)
+// Project sets each edge's isocentre-plane position from its measured one
+// with project(x, SAD, SSD, depth) — x·SAD/(SSD + depth) (magnification,
+// common practice; analysis.ProjectToIsocentre). A setup at the isocentre
+// projects with SSD = SAD, depth 0.
+func (c *Check) Project(sadCm float64, project func(x, sadCm, ssdCm, depthCm float64) (float64, error)) error {
+	ssd, depth := sadCm, 0.0
+	if !c.Setup.AtIsocentre() {
+		ssd, depth = deref(c.Setup.SSDcm, sadCm), deref(c.Setup.DepthCm, 0)
+	}
 	for i := range c.Edges {
 		e := &c.Edges[i]
-		e.IsoPositionMM = project(e.PositionMM, sadCm, dist)
+		v, err := project(e.PositionMM, sadCm, ssd, depth)
+		if err != nil {
+			return err
+		}
+		e.IsoPositionMM = v
 		if e.LightPositionMM != nil {
-			v := project(*e.LightPositionMM, sadCm, dist)
+			v, err := project(*e.LightPositionMM, sadCm, ssd, depth)
+			if err != nil {
+				return err
+			}
 			e.IsoLightPositionMM = &v
 		}
 	}
+	return nil
 }
 
 // BodyHash is a fingerprint of what the client sent (not the derived

@@ -11,6 +11,7 @@ import (
 	"github.com/jackc/pgx/v5"
 
 	"halfmark"
+	"halfmark/analysis"
 )
 
 // MaxBatch is the most checks one batch may carry.
@@ -79,7 +80,9 @@ func (d *DB) Prepare(ctx context.Context, cs []halfmark.Check, prefix string) er
 				if c.BeamID > 0 && beams[c.BeamID] != c.MachineID {
 					f.Add(p+"beam_id", "beam %d is not a beam of machine %d (%s); see GET /api/v1/machines/%d/beams", c.BeamID, m.ID, m.Name, m.ID)
 				}
-				c.Project(m.SADcm, projectToIsocentre)
+				if err := c.Project(m.SADcm, analysis.ProjectToIsocentre); err != nil {
+					f.Add(p+"setup", "cannot project to the isocentre plane: %v", err)
+				}
 			}
 		}
 		if c.ID == "" {
@@ -94,11 +97,6 @@ func (d *DB) Prepare(ctx context.Context, cs []halfmark.Check, prefix string) er
 	}
 	return f.Err("the check is not valid; nothing was stored")
 }
-
-// projectToIsocentre maps a position measured at distance distCm from the
-// source to the isocentre plane: x·SAD/(SSD + depth) (magnification,
-// common practice).
-func projectToIsocentre(x, sadCm, distCm float64) float64 { return x * sadCm / distCm }
 
 // record stores cs all-or-nothing; replays of stored ids with the same body
 // count as existing, with another body as a conflict.

@@ -2,17 +2,14 @@ package epid
 
 import (
 	"bytes"
-	"cmp"
 	"math"
-	"math/rand/v2"
-	"slices"
-	"strconv"
 	"testing"
 
 	"github.com/suyashkumar/dicom"
-	"github.com/suyashkumar/dicom/pkg/frame"
 	"github.com/suyashkumar/dicom/pkg/tag"
+
 	"github.com/suyashkumar/dicom/pkg/uid"
+	"halfmark/analysis/epid/synth"
 )
 
 // Geometry of the synthetic images: an imager of 1024×768 pixels of 0.392 mm
@@ -30,7 +27,9 @@ const (
 // phi is the standard normal cumulative distribution Φ(z) = ½·erfc(−z/√2)
 // (common practice; math.Erfc is the standard library's complementary error
 // function).
-func phi(z float64) float64 { return 0.5 * math.Erfc(-z/math.Sqrt2) }
+func phi(z float64) float64 { return synth.Phi(z) }
+
+var testImager = synth.Imager{Rows: testRows, Cols: testCols, SpacingMM: testSpacing, SIDmm: testSID, SADmm: testSAD}
 
 // fieldSpec describes a synthetic open field: a rectangle with jaw distances
 // X1, X2, Y1, Y2 (mm at the isocentre, from the axis) blurred by a Gaussian of
@@ -64,43 +63,8 @@ func (f fieldSpec) axis() (float64, float64) {
 // pixels renders the field on the test imager.
 func (f fieldSpec) pixels() []float64 {
 	ar, ac := f.axis()
-	th := f.RotDeg * math.Pi / 180
-	cs, sn := math.Cos(th), math.Sin(th)
-	pix := make([]float64, testRows*testCols)
-	var rng *rand.Rand
-	if f.Noise > 0 {
-		rng = rand.New(rand.NewPCG(f.Seed, 0x5eed))
-	}
-	// Separable when not rotated: precompute the x and y factors.
-	fx := make([]float64, testCols)
-	fy := make([]float64, testRows)
-	for c := range fx {
-		x := (float64(c) - ac) * testIsoPix
-		fx[c] = phi((x+f.X1)/f.Sigma) - phi((x-f.X2)/f.Sigma)
-	}
-	for r := range fy {
-		y := (ar - float64(r)) * testIsoPix
-		fy[r] = phi((y+f.Y1)/f.Sigma) - phi((y-f.Y2)/f.Sigma)
-	}
-	for r := range testRows {
-		y := (ar - float64(r)) * testIsoPix
-		for c := range testCols {
-			var v float64
-			if f.RotDeg == 0 {
-				v = fx[c] * fy[r]
-			} else {
-				x := (float64(c) - ac) * testIsoPix
-				xr, yr := x*cs+y*sn, -x*sn+y*cs
-				v = (phi((xr+f.X1)/f.Sigma) - phi((xr-f.X2)/f.Sigma)) * (phi((yr+f.Y1)/f.Sigma) - phi((yr-f.Y2)/f.Sigma))
-			}
-			v = f.Bg + f.Amp*v
-			if rng != nil {
-				v += f.Noise * rng.NormFloat64()
-			}
-			pix[r*testCols+c] = v
-		}
-	}
-	return pix
+	return synth.Field{X1: f.X1, X2: f.X2, Y1: f.Y1, Y2: f.Y2, Sigma: f.Sigma, RotDeg: f.RotDeg, Bg: f.Bg, Amp: f.Amp,
+		Noise: f.Noise, Seed: f.Seed}.Pixels(testImager, ar, ac)
 }
 
 // image returns the field as an Image with the test geometry.
@@ -135,56 +99,8 @@ type picketSpec struct {
 }
 
 func (p picketSpec) pixels() []float64 {
-	ar, ac := float64(testRows-1)/2, float64(testCols-1)/2
-	pix := make([]float64, testRows*testCols)
-	var rng *rand.Rand
-	if p.Noise > 0 {
-		rng = rand.New(rand.NewPCG(p.Seed, 0xfe11ce))
-	}
-	total := p.Layout.TotalMM()
-	tan := math.Tan(p.RotDeg * math.Pi / 180)
-	cache := map[int][]float64{} // pair → x profile, when strips are not turned
-	for r := range testRows {
-		y := (ar - float64(r)) * testIsoPix
-		// Leaf pair under this row (from the Y2 side).
-		pair, top := 0, total/2
-		for i, w := range p.Layout.WidthsMM {
-			if y <= top && y > top-w {
-				pair = i + 1
-				break
-			}
-			top -= w
-		}
-		jaw := phi((y+p.YJaw)/p.Sigma) - phi((y-p.YJaw)/p.Sigma)
-		prof := cache[pair]
-		if prof == nil {
-			prof = make([]float64, testCols)
-			for c := range testCols {
-				x := (float64(c) - ac) * testIsoPix
-				v := 0.0
-				if pair > 0 {
-					for j, xc := range p.Pickets {
-						xc += p.Shift - y*tan
-						l := xc - p.Width/2 + p.Err1[[2]int{pair, j}]
-						rr := xc + p.Width/2 + p.Err2[[2]int{pair, j}]
-						v += phi((x-l)/p.Sigma) - phi((x-rr)/p.Sigma)
-					}
-				}
-				prof[c] = v
-			}
-			if p.RotDeg == 0 {
-				cache[pair] = prof
-			}
-		}
-		for c := range testCols {
-			v := p.Bg + p.Amp*prof[c]*jaw
-			if rng != nil {
-				v += p.Noise * rng.NormFloat64()
-			}
-			pix[r*testCols+c] = v
-		}
-	}
-	return pix
+	return synth.Picket{LeafWidthsMM: p.Layout.WidthsMM, Pickets: p.Pickets, Width: p.Width, Sigma: p.Sigma, YJaw: p.YJaw,
+		Bg: p.Bg, Amp: p.Amp, Noise: p.Noise, Seed: p.Seed, Shift: p.Shift, RotDeg: p.RotDeg, Err1: p.Err1, Err2: p.Err2}.Pixels(testImager)
 }
 
 func (p picketSpec) image() Image {
@@ -212,61 +128,14 @@ func ds(s ...string) []string { return s }
 
 func (d *dcm) dataset(t testing.TB) dicom.Dataset {
 	t.Helper()
-	vals := map[tag.Tag]any{
-		tag.MediaStorageSOPClassUID:    ds("1.2.840.10008.5.1.4.1.1.481.1"),
-		tag.MediaStorageSOPInstanceUID: ds("1.2.826.0.1.3680043.2.1125.1"),
-		tag.TransferSyntaxUID:          ds(d.ts),
-		tag.SOPClassUID:                ds("1.2.840.10008.5.1.4.1.1.481.1"),
-		tag.SOPInstanceUID:             ds("1.2.826.0.1.3680043.2.1125.1"),
-		tag.Modality:                   ds("RTIMAGE"),
-		tag.SamplesPerPixel:            []int{1},
-		tag.PhotometricInterpretation:  ds(d.photometric),
-		tag.Rows:                       []int{d.rows},
-		tag.Columns:                    []int{d.cols},
-		tag.BitsAllocated:              []int{16},
-		tag.BitsStored:                 []int{16},
-		tag.HighBit:                    []int{15},
-		tag.PixelRepresentation:        []int{0},
-		tagRTImagePlane:                ds("NORMAL"),
-		tagImagePlanePixelSpacing:      ds("0.392", "0.392"),
-		tagRadiationMachineSAD:         ds(strconv.FormatFloat(testSAD, 'f', -1, 64)),
-		tagRTImageSID:                  ds(strconv.FormatFloat(testSID, 'f', -1, 64)),
-		tagGantryAngle:                 ds("0"),
-		tagBeamLimitingDevAngle:        ds("0"),
+	g := testImager
+	g.Rows, g.Cols = d.rows, d.cols
+	set, err := synth.RTImage{Imager: g, Frames: d.frames, Photometric: d.photometric, TransferUID: d.ts,
+		Omit: d.omit, Set: d.set, Exposure: d.exposure}.Dataset()
+	if err != nil {
+		t.Fatal(err)
 	}
-	if len(d.frames) > 1 {
-		vals[tag.NumberOfFrames] = ds(strconv.Itoa(len(d.frames)))
-	}
-	var frames []*frame.Frame
-	for _, f := range d.frames {
-		nf := frame.NewNativeFrame[uint16](16, d.rows, d.cols, d.rows*d.cols, 1)
-		for i, v := range f {
-			nf.RawData[i] = uint16(math.Max(0, math.Min(65535, math.Round(v))))
-		}
-		frames = append(frames, &frame.Frame{NativeData: nf})
-	}
-	vals[tag.PixelData] = dicom.PixelDataInfo{Frames: frames}
-	if d.exposure != nil {
-		vals[tagExposureSequence] = [][]*dicom.Element{d.exposure}
-	}
-	for k, v := range d.set {
-		vals[k] = v
-	}
-	var elems []*dicom.Element
-	for k, v := range vals {
-		if d.omit[k] {
-			continue
-		}
-		e, err := dicom.NewElement(k, v)
-		if err != nil {
-			t.Fatalf("NewElement %v: %v", k, err)
-		}
-		elems = append(elems, e)
-	}
-	slices.SortFunc(elems, func(a, b *dicom.Element) int {
-		return cmp.Or(cmp.Compare(a.Tag.Group, b.Tag.Group), cmp.Compare(a.Tag.Element, b.Tag.Element))
-	})
-	return dicom.Dataset{Elements: elems}
+	return set
 }
 
 func (d *dcm) bytes(t testing.TB) []byte {

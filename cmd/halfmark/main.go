@@ -42,6 +42,7 @@ func commands() []command {
 		{"worker", "run the scheduled worker only (for scale-out)", cmdWorker},
 		{"migrate", "apply database migrations and exit", cmdMigrate},
 		{"token", "create, list or revoke API tokens: token create --name N --role R", cmdToken},
+		{"user", "add a dashboard user: user add --email E --role R [--password-stdin]", cmdUser},
 		{"import", "import records: import checks FILE.csv", cmdImport},
 		{"analyze", "analyse raw data: analyze profile|image|picket FILE", cmdAnalyze},
 	}
