@@ -418,6 +418,21 @@ func TestBatchIsAllOrNothing(t *testing.T) {
 	if res.Created != 20 || e.countEdges() != 40 {
 		t.Fatalf("batch result %+v, %d edge rows", res, e.countEdges())
 	}
+	// A large batch leaves one audit row listing every id; asking the audit
+	// log about one of its checks finds it.
+	var big []string
+	for i := 0; i < 30; i++ {
+		big = append(big, fmt.Sprintf(`{"machine_id":%d,"beam_id":%d,"kind":"morning","measured_at":"2026-04-%02dT07:00:00Z","edges":[{"edge":"X1","position_mm":50}]}`,
+			e.mach, e.beam, i+1))
+	}
+	e.mustDo("POST", "/api/v1/checks/batch", halfmark.RoleTherapist, `{"checks":[`+strings.Join(big, ",")+`]}`, 201, &res)
+	var entries struct {
+		Entries []halfmark.AuditEntry `json:"entries"`
+	}
+	e.mustDo("GET", "/api/v1/audit?entity=check&entity_id="+res.IDs[17], halfmark.RolePhysicist, "", 200, &entries)
+	if len(entries.Entries) != 1 || entries.Entries[0].Action != "record-batch" || entries.Entries[0].Actor != "token:t-therapist" {
+		t.Fatalf("audit for a check stored in a batch: %+v", entries.Entries)
+	}
 }
 
 func TestHealthAndOpenAPI(t *testing.T) {

@@ -106,12 +106,16 @@ func (d *DB) record(ctx context.Context, a halfmark.Actor, cs []halfmark.Check, 
 	}
 	n := len(cs)
 	res := halfmark.BatchResult{IDs: make([]string, n)}
+	hashes := make([]string, n)
+	for i := range cs {
+		hashes[i] = cs[i].BodyHash()
+	}
 	cols := struct {
 		id, sup, hash, kind, dev, op, note, geom []string
 		mach, beam                               []int64
 		at                                       []time.Time
 		ssd, depth, fx, fy, col, gan             []*float64
-		edges                                    [][]byte
+		edges                                    []string
 	}{}
 	for i := range cs {
 		c := &cs[i]
@@ -122,7 +126,7 @@ func (d *DB) record(ctx context.Context, a halfmark.Actor, cs []halfmark.Check, 
 			sup = c.Supersedes
 		}
 		cols.sup = append(cols.sup, sup)
-		cols.hash = append(cols.hash, c.BodyHash())
+		cols.hash = append(cols.hash, hashes[i])
 		cols.kind = append(cols.kind, string(c.Kind))
 		cols.dev = append(cols.dev, c.Device)
 		cols.op = append(cols.op, c.Operator)
@@ -142,16 +146,16 @@ func (d *DB) record(ctx context.Context, a halfmark.Actor, cs []halfmark.Check, 
 		if err != nil {
 			return halfmark.BatchResult{}, err
 		}
-		cols.edges = append(cols.edges, ej)
+		cols.edges = append(cols.edges, string(ej))
 	}
 	err := d.tx(ctx, func(tx pgx.Tx) error {
 		rows, err := tx.Query(ctx, `INSERT INTO checks (id, supersedes, body_hash, kind, device, operator, note, geometry,
 				machine_id, beam_id, measured_at, ssd_cm, depth_cm, field_x_cm, field_y_cm, collimator_deg, gantry_deg, edges, created_by)
 			SELECT u.id, NULLIF(u.sup,'')::uuid, u.hash, u.kind, u.dev, u.op, u.note, u.geom, u.mach, u.beam, u.at,
-				u.ssd, u.depth, u.fx, u.fy, u.col, u.gan, u.edges, $19
+				u.ssd, u.depth, u.fx, u.fy, u.col, u.gan, u.edges::jsonb, $19
 			FROM unnest($1::uuid[], $2::text[], $3::text[], $4::text[], $5::text[], $6::text[], $7::text[], $8::text[],
 				$9::bigint[], $10::bigint[], $11::timestamptz[], $12::float8[], $13::float8[], $14::float8[], $15::float8[],
-				$16::float8[], $17::float8[], $18::jsonb[])
+				$16::float8[], $17::float8[], $18::text[])
 				AS u(id, sup, hash, kind, dev, op, note, geom, mach, beam, at, ssd, depth, fx, fy, col, gan, edges)
 			ON CONFLICT (id) DO NOTHING RETURNING id::text`,
 			cols.id, cols.sup, cols.hash, cols.kind, cols.dev, cols.op, cols.note, cols.geom, cols.mach, cols.beam, cols.at,
@@ -170,7 +174,7 @@ func (d *DB) record(ctx context.Context, a halfmark.Actor, cs []halfmark.Check, 
 		res.Created = len(created)
 		res.Existing = n - len(created)
 		if res.Existing > 0 {
-			if err := checkReplays(ctx, tx, cs, isNew); err != nil {
+			if err := checkReplays(ctx, tx, cs, hashes, isNew); err != nil {
 				return err
 			}
 		}
@@ -180,23 +184,7 @@ func (d *DB) record(ctx context.Context, a halfmark.Actor, cs []halfmark.Check, 
 		if err := upsertSeries(ctx, tx, cs, isNew); err != nil {
 			return err
 		}
-		auditRows := make([][]any, 0, res.Created)
-		for i := range cs {
-			c := &cs[i]
-			if !isNew[c.ID] {
-				continue
-			}
-			action := "record"
-			if c.Supersedes != "" {
-				action = "correct"
-			}
-			detail := fmt.Appendf(nil, `{"machine_id":%d,"beam_id":%d,"kind":%q,"edges":%d,"supersedes":%q}`,
-				c.MachineID, c.BeamID, c.Kind, len(c.Edges), c.Supersedes)
-			auditRows = append(auditRows, []any{a.Name, action, "check", c.ID, detail})
-		}
-		_, err = tx.CopyFrom(ctx, pgx.Identifier{"audit_log"}, []string{"actor", "action", "entity", "entity_id", "detail"},
-			pgx.CopyFromRows(auditRows))
-		return err
+		return auditChecks(ctx, tx, a, cs, isNew)
 	})
 	if err != nil {
 		return halfmark.BatchResult{}, err
@@ -205,16 +193,16 @@ func (d *DB) record(ctx context.Context, a halfmark.Actor, cs []halfmark.Check, 
 }
 
 // checkReplays compares the body hash of every already-stored id.
-func checkReplays(ctx context.Context, tx pgx.Tx, cs []halfmark.Check, isNew map[string]bool) error {
-	var ids, hashes []string
+func checkReplays(ctx context.Context, tx pgx.Tx, cs []halfmark.Check, hashes []string, isNew map[string]bool) error {
+	var ids, hs []string
 	for i := range cs {
 		if !isNew[cs[i].ID] {
 			ids = append(ids, cs[i].ID)
-			hashes = append(hashes, cs[i].BodyHash())
+			hs = append(hs, hashes[i])
 		}
 	}
 	rows, err := tx.Query(ctx, `SELECT u.id::text FROM unnest($1::uuid[], $2::text[]) AS u(id, hash)
-		JOIN checks c ON c.id = u.id WHERE c.body_hash <> u.hash`, ids, hashes)
+		JOIN checks c ON c.id = u.id WHERE c.body_hash <> u.hash`, ids, hs)
 	if err != nil {
 		return err
 	}
@@ -281,3 +269,40 @@ func upsertSeries(ctx context.Context, tx pgx.Tx, cs []halfmark.Check, isNew map
 		ORDER BY 1, 2, 3, 4, 5 ON CONFLICT DO NOTHING`, ms, bs, gs, es, qs)
 	return err
 }
+
+// auditChecks writes the audit trail of newly stored checks: one row per
+// check, or for a batch of more than batchAuditMin checks one row that lists
+// every id (entity "check-batch"; db.Audit finds a check's batch row too).
+func auditChecks(ctx context.Context, tx pgx.Tx, a halfmark.Actor, cs []halfmark.Check, isNew map[string]bool) error {
+	var ids, corrected []string
+	for i := range cs {
+		if isNew[cs[i].ID] {
+			ids = append(ids, cs[i].ID)
+			if cs[i].Supersedes != "" {
+				corrected = append(corrected, cs[i].Supersedes)
+			}
+		}
+	}
+	if len(ids) > batchAuditMin {
+		return audit(ctx, tx, a, "record-batch", "check-batch", ids[0], map[string]any{
+			"ids": ids, "count": len(ids), "supersedes": corrected})
+	}
+	for i := range cs {
+		c := &cs[i]
+		if !isNew[c.ID] {
+			continue
+		}
+		action := "record"
+		if c.Supersedes != "" {
+			action = "correct"
+		}
+		if err := audit(ctx, tx, a, action, "check", c.ID, map[string]any{"machine_id": c.MachineID, "beam_id": c.BeamID,
+			"kind": c.Kind, "edges": len(c.Edges), "supersedes": c.Supersedes}); err != nil {
+			return err
+		}
+	}
+	return nil
+}
+
+// batchAuditMin is the batch size above which one audit row covers a batch.
+const batchAuditMin = 20

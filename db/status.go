@@ -1,0 +1,199 @@
+package db
+
+import (
+	"context"
+	"slices"
+	"time"
+
+	"halfmark"
+)
+
+// StatusOptions say when a check is overdue.
+type StatusOptions struct {
+	// MorningInterval + MorningGrace is the longest a beam may go without a
+	// morning check (default 24 h + 6 h). With SkipWeekends, time on
+	// Saturdays and Sundays (in Location) does not count: a Friday check
+	// covers the weekend (TG-142 daily checks are per treatment day).
+	MorningInterval, MorningGrace time.Duration
+	SkipWeekends                  bool
+	// MonthlyInterval is the longest a beam may go without a monthly check
+	// (default 31 days).
+	MonthlyInterval time.Duration
+	Location        *time.Location
+}
+
+// DefaultStatusOptions are the defaults of StatusOptions.
+var DefaultStatusOptions = StatusOptions{MorningInterval: 24 * time.Hour, MorningGrace: 6 * time.Hour, SkipWeekends: true,
+	MonthlyInterval: 31 * 24 * time.Hour, Location: time.Local}
+
+// Status implements halfmark.StatusService with DefaultStatusOptions.
+func (d *DB) Status(ctx context.Context) ([]halfmark.MachineStatus, error) {
+	return d.StatusWith(ctx, d.Now(), DefaultStatusOptions)
+}
+
+// StatusWith answers the front page at now: machines ordered Level 3, 2,
+// 1, then overdue, then in control (by name within each). A machine's
+// level is the highest current level of its series; its worst series is
+// the one with that level and the largest |deviation|/tolerance. A beam is
+// overdue when its last morning or monthly check is older than its
+// interval; a beam that never had a check of that kind is overdue only on
+// a clinical machine.
+func (d *DB) StatusWith(ctx context.Context, now time.Time, o StatusOptions) ([]halfmark.MachineStatus, error) {
+	if o.Location == nil {
+		o.Location = time.Local
+	}
+	rows, err := d.Pool.Query(ctx, `SELECT m.id, m.name, m.clinical,
+			coalesce((SELECT max(st.level) FROM series_state st JOIN series s ON s.id = st.series_id WHERE s.machine_id = m.id), 0),
+			(SELECT count(*) FROM alerts a WHERE a.machine_id = m.id AND a.state <> 'resolved'),
+			(SELECT max(c.measured_at) FROM checks c WHERE c.machine_id = m.id)
+		FROM machines m ORDER BY m.name`)
+	if err != nil {
+		return nil, mapErr(err)
+	}
+	var out []halfmark.MachineStatus
+	clinical := map[int64]bool{}
+	idx := map[int64]int{}
+	for rows.Next() {
+		var ms halfmark.MachineStatus
+		var cl bool
+		if err := rows.Scan(&ms.ID, &ms.Name, &cl, &ms.Level, &ms.OpenAlerts, &ms.LastCheckAt); err != nil {
+			rows.Close()
+			return nil, mapErr(err)
+		}
+		clinical[ms.ID] = cl
+		idx[ms.ID] = len(out)
+		out = append(out, ms)
+	}
+	if err := rows.Err(); err != nil {
+		return nil, mapErr(err)
+	}
+	if err := d.worstSeries(ctx, out, idx); err != nil {
+		return nil, err
+	}
+	brows, err := d.Pool.Query(ctx, `SELECT b.machine_id,
+			(SELECT max(c.measured_at) FROM checks c WHERE c.beam_id = b.id AND c.kind = 'morning'),
+			(SELECT max(c.measured_at) FROM checks c WHERE c.beam_id = b.id AND c.kind = 'monthly')
+		FROM beams b`)
+	if err != nil {
+		return nil, mapErr(err)
+	}
+	for brows.Next() {
+		var mid int64
+		var morning, monthly *time.Time
+		if err := brows.Scan(&mid, &morning, &monthly); err != nil {
+			brows.Close()
+			return nil, mapErr(err)
+		}
+		i, ok := idx[mid]
+		if !ok {
+			continue
+		}
+		if Overdue(morning, now, o.MorningInterval+o.MorningGrace, o.SkipWeekends, o.Location, clinical[mid]) ||
+			Overdue(monthly, now, o.MonthlyInterval, false, o.Location, clinical[mid]) {
+			out[i].Overdue = true
+		}
+	}
+	if err := brows.Err(); err != nil {
+		return nil, mapErr(err)
+	}
+	slices.SortStableFunc(out, func(a, b halfmark.MachineStatus) int {
+		ra, rb := rank(a), rank(b)
+		if ra != rb {
+			return rb - ra
+		}
+		return 0
+	})
+	return out, nil
+}
+
+// rank orders machines: Level 3, 2, 1 (4, 3, 2), overdue (1), in control (0).
+func rank(m halfmark.MachineStatus) int {
+	if m.Level > 0 {
+		return int(m.Level) + 1
+	}
+	if m.Overdue {
+		return 1
+	}
+	return 0
+}
+
+func (d *DB) worstSeries(ctx context.Context, out []halfmark.MachineStatus, idx map[int64]int) error {
+	rows, err := d.Pool.Query(ctx, `SELECT DISTINCT ON (s.machine_id) s.machine_id, s.id, s.beam_id, b.energy_mv, b.fff, s.edge, s.quantity,
+			s.geometry, st.deviation_mm, st.tolerance_mm, st.action_mm, st.rule, st.projected_crossing
+		FROM series_state st JOIN series s ON s.id = st.series_id JOIN beams b ON b.id = s.beam_id
+		WHERE st.level > 0 OR st.projected_crossing IS NOT NULL
+		ORDER BY s.machine_id, st.level DESC, abs(st.deviation_mm) / nullif(st.tolerance_mm, 0) DESC NULLS LAST, st.projected_crossing NULLS LAST`)
+	if err != nil {
+		return mapErr(err)
+	}
+	defer rows.Close()
+	for rows.Next() {
+		var mid int64
+		var w halfmark.WorstSeries
+		var energy float64
+		var fff bool
+		var q string
+		if err := rows.Scan(&mid, &w.SeriesID, &w.BeamID, &energy, &fff, &w.Edge, &q, &w.Geometry, &w.DeviationMM,
+			&w.ToleranceMM, &w.ActionMM, &w.Rule, &w.ProjectedCrossing); err != nil {
+			return mapErr(err)
+		}
+		w.BeamLabel, w.Quantity = halfmark.BeamLabel(energy, fff), halfmark.Quantity(q)
+		if i, ok := idx[mid]; ok {
+			out[i].Worst = &w
+		}
+	}
+	return mapErr(rows.Err())
+}
+
+// Overdue reports whether a check last done at last (nil: never) is
+// overdue at now for the given interval. With skipWeekends, the hours of
+// Saturdays and Sundays in loc between last and now do not count. A check
+// never done is overdue only when clinical is true.
+func Overdue(last *time.Time, now time.Time, interval time.Duration, skipWeekends bool, loc *time.Location, clinical bool) bool {
+	if last == nil {
+		return clinical
+	}
+	elapsed := now.Sub(*last)
+	if skipWeekends {
+		elapsed -= weekendTime(*last, now, loc)
+	}
+	return elapsed > interval
+}
+
+// weekendTime is the part of [from, to] that falls on a Saturday or Sunday
+// in loc.
+func weekendTime(from, to time.Time, loc *time.Location) time.Duration {
+	if !to.After(from) {
+		return 0
+	}
+	var total time.Duration
+	f := from.In(loc)
+	day := time.Date(f.Year(), f.Month(), f.Day(), 0, 0, 0, 0, loc)
+	for day.Before(to) {
+		next := day.AddDate(0, 0, 1)
+		if wd := day.Weekday(); wd == time.Saturday || wd == time.Sunday {
+			s, e := maxTime(day, from), minTime(next, to)
+			if e.After(s) {
+				total += e.Sub(s)
+			}
+		}
+		day = next
+	}
+	return total
+}
+
+func maxTime(a, b time.Time) time.Time {
+	if a.After(b) {
+		return a
+	}
+	return b
+}
+
+func minTime(a, b time.Time) time.Time {
+	if a.Before(b) {
+		return a
+	}
+	return b
+}
+
+var _ halfmark.StatusService = (*DB)(nil)
