@@ -34,6 +34,9 @@ type env struct {
 
 func newEnv(t *testing.T) *env { return newBenchEnv(t) }
 
+// newHTTPServer serves h on a loopback port.
+func newHTTPServer(h http.Handler) *httptest.Server { return httptest.NewServer(h) }
+
 func newBenchEnv(t testing.TB) *env {
 	t.Helper()
 	ctx := context.Background()
@@ -47,7 +50,7 @@ func newBenchEnv(t testing.TB) *env {
 	}
 	t.Cleanup(d.Close)
 	e := &env{t: t, db: d, tokens: map[halfmark.Role]string{}}
-	e.srv = httptest.NewServer(api.New(api.Services{Machines: d, Checks: d, Series: d, Auth: d, Audit: d, Pinger: d}))
+	e.srv = newHTTPServer(api.New(api.Services{Machines: d, Checks: d, Series: d, Auth: d, Audit: d, Pinger: d}))
 	t.Cleanup(e.srv.Close)
 	for _, r := range []halfmark.Role{halfmark.RoleTherapist, halfmark.RolePhysicist, halfmark.RoleAdmin} {
 		_, s, err := d.CreateToken(ctx, halfmark.CLIActor("test"), "t-"+string(r), r)

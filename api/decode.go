@@ -10,6 +10,7 @@ import (
 	"net/http"
 	"strconv"
 	"strings"
+	"unicode/utf8"
 
 	"github.com/labstack/echo/v4"
 
@@ -36,6 +37,9 @@ func decodeJSON(c echo.Context, v any) error {
 	if len(body) > MaxBody {
 		return badRequest(http.StatusRequestEntityTooLarge,
 			"the request body is over the 1 MiB limit; split a large import into batches")
+	}
+	if !utf8.Valid(body) {
+		return badRequest(http.StatusBadRequest, "the body is not valid UTF-8; send JSON text encoded as UTF-8")
 	}
 	dec := json.NewDecoder(bytes.NewReader(body))
 	dec.DisallowUnknownFields()

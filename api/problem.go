@@ -111,7 +111,10 @@ func ErrorHandler(log *slog.Logger) echo.HTTPErrorHandler {
 		}
 		p := problemFor(err)
 		p.Instance = c.Request().URL.Path
-		if p.Status >= 500 {
+		switch {
+		case p.Status == http.StatusServiceUnavailable:
+			log.Warn("request refused: dependency unavailable", "path", c.Request().URL.Path, "method", c.Request().Method, "err", err)
+		case p.Status >= 500:
 			log.Error("request failed", "path", c.Request().URL.Path, "method", c.Request().Method, "err", err)
 		}
 		if p.Status == http.StatusUnauthorized {

@@ -40,4 +40,13 @@ func (h *handlers) routes(e *echo.Echo) {
 	v1.POST("/tokens", h.createToken, admin)
 	v1.DELETE("/tokens/:id", h.revokeToken, admin)
 	v1.GET("/audit", h.listAudit, physicist)
+
+	v1.GET("/status", h.status, therapist)
+	v1.GET("/alerts", h.listAlerts, therapist)
+	v1.GET("/alerts/:id", h.getAlert, therapist)
+	v1.POST("/alerts/:id/acknowledge", h.acknowledgeAlert, physicist)
+	v1.POST("/alerts/:id/resolve", h.resolveAlert, physicist)
+	v1.GET("/series/:id/chart", h.seriesChart, therapist)
+	v1.GET("/machines/:id/service-events", h.listServiceEvents, therapist)
+	v1.POST("/machines/:id/service-events", h.createServiceEvent, physicist)
 }

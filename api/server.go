@@ -20,6 +20,10 @@ type Services struct {
 	Auth     halfmark.AuthService
 	Audit    halfmark.AuditService
 	Pinger   halfmark.Pinger
+	Alerts   halfmark.AlertService  // alert list and lifecycle
+	Status   halfmark.StatusService // the front page
+	Events   EventService           // service events
+	Charts   ChartService           // series charts (nil: the chart route answers 503)
 	Log      *slog.Logger
 	Now      func() time.Time
 }

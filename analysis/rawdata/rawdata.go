@@ -48,6 +48,10 @@ type PicketParams struct {
 	ToleranceMM float64   `json:"tolerance_mm,omitempty"` // default 0.5 mm
 }
 
+// MaxProfileSamples bounds one profile: a water-tank scan at 0.1 mm over
+// 60 cm has 6,000 samples; more than this is not a profile.
+const MaxProfileSamples = 100_000
+
 // Profile parses a CSV/TSV profile and analyses it.
 func Profile(data []byte, p ProfileParams) (profile.Result, error) {
 	if _, err := axis(p.Axis); err != nil {
@@ -56,6 +60,9 @@ func Profile(data []byte, p ProfileParams) (profile.Result, error) {
 	samples, err := profile.ParseCSV(bytes.NewReader(data))
 	if err != nil {
 		return profile.Result{}, err
+	}
+	if len(samples) > MaxProfileSamples {
+		return profile.Result{}, fmt.Errorf("the profile has %d samples; at most %d are analysed (resample the scan)", len(samples), MaxProfileSamples)
 	}
 	return profile.Analyze(samples, profile.Options{Normalise: p.Normalise, Interpolation: p.Interpolation,
 		FFF: p.FFF, SmoothPasses: p.Smooth})
