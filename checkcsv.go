@@ -81,18 +81,19 @@ func ReadChecksCSV(r io.Reader, now time.Time) (rows []CSVRow, bad []FieldError,
 		if errors.Is(err, io.EOF) {
 			break
 		}
-		line, _ := cr.FieldPos(0)
 		if err != nil {
 			var pe *csv.ParseError
 			if errors.As(err, &pe) {
 				bad = append(bad, FieldError{Line: pe.Line, Message: "not valid CSV: " + pe.Err.Error()})
-				if errors.Is(pe.Err, csv.ErrFieldCount) {
-					continue
+				if errors.Is(pe.Err, csv.ErrQuote) || errors.Is(pe.Err, csv.ErrBareQuote) {
+					// A broken quote swallows the rest of the file: stop here.
+					return rows, bad, nil
 				}
 				continue
 			}
 			return rows, bad, err
 		}
+		line, _ := cr.FieldPos(0)
 		row, fe := parseCSVRow(rec, col, now)
 		row.Line = line
 		if len(fe) > 0 {
