@@ -24,4 +24,4 @@ fuzz:
 	./deploy/fuzz.sh 10s
 
 bench:
-	$(GO) run ./cmd/halfmark bench
+	./deploy/bench.sh

@@ -362,6 +362,9 @@ type CheckService interface {
 	// different body is EConflict. Unknown machine/beam and bad values are
 	// EInvalid with field errors; nothing is written on any error.
 	RecordCheck(ctx context.Context, a Actor, c *Check) (stored StoredCheck, created bool, err error)
+	// RecordCheckWithRaw stores a check computed from raw data together
+	// with that raw data, in one transaction.
+	RecordCheckWithRaw(ctx context.Context, a Actor, c *Check, r *RawData) (stored StoredCheck, created bool, err error)
 	// RecordBatch stores all checks or none.
 	RecordBatch(ctx context.Context, a Actor, cs []Check) (BatchResult, error)
 	// Check returns one check with its outcomes; ENotFound when absent.

@@ -50,7 +50,7 @@ func newBenchEnv(t testing.TB) *env {
 	}
 	t.Cleanup(d.Close)
 	e := &env{t: t, db: d, tokens: map[halfmark.Role]string{}}
-	e.srv = newHTTPServer(api.New(api.Services{Machines: d, Checks: d, Series: d, Auth: d, Audit: d, Pinger: d}))
+	e.srv = newHTTPServer(api.New(api.Services{Machines: d, Checks: d, Series: d, Auth: d, Audit: d, Pinger: d, Raw: d, Metrics: api.NewMetrics(d)}))
 	t.Cleanup(e.srv.Close)
 	for _, r := range []halfmark.Role{halfmark.RoleTherapist, halfmark.RolePhysicist, halfmark.RoleAdmin} {
 		_, s, err := d.CreateToken(ctx, halfmark.CLIActor("test"), "t-"+string(r), r)
@@ -447,6 +447,28 @@ func TestHealthAndOpenAPI(t *testing.T) {
 		}
 		if p == "/api/v1/openapi.yaml" && !bytes.Contains(b, []byte("X = X1 + X2")) {
 			t.Error("the OpenAPI text must state the edge convention")
+		}
+	}
+}
+
+// /metrics reports requests by route template and the checks and edge
+// results ingested, in the Prometheus text format.
+func TestMetrics(t *testing.T) {
+	e := newEnv(t)
+	e.mustDo("POST", "/api/v1/checks", halfmark.RoleTherapist, e.checkBody("", `[{"edge":"X1","position_mm":55.1},{"edge":"X2","position_mm":55}]`), 201, nil)
+	st, _, b := e.do("GET", "/metrics", "", "")
+	if st != 200 {
+		t.Fatalf("/metrics: %d", st)
+	}
+	for _, want := range []string{
+		"halfmark_ingested_checks_total 1",
+		"halfmark_ingested_edge_results_total 2",
+		`halfmark_http_requests_total{method="POST",route="/api/v1/checks",status="201"} 1`,
+		`halfmark_open_alerts{level="3"} 0`,
+		"halfmark_outbox_backlog 0",
+	} {
+		if !bytes.Contains(b, []byte(want)) {
+			t.Errorf("/metrics lacks %q", want)
 		}
 	}
 }

@@ -26,6 +26,10 @@ func (h *handlers) routes(e *echo.Echo) {
 	v1.POST("/checks/batch", h.createBatch, therapist)
 	v1.GET("/checks", h.listChecks, therapist)
 	v1.GET("/checks/:id", h.getCheck, therapist)
+	v1.POST("/checks/raw", h.checkFromRaw, therapist)
+	v1.POST("/checks/:id/recompute", h.recompute, physicist)
+	v1.GET("/checks/:id/raw", h.listRaw, therapist)
+	v1.GET("/raw/:id", h.getRaw, therapist)
 
 	v1.GET("/series/:id", h.getSeries, therapist)
 	v1.GET("/series/:id/points", h.seriesPoints, therapist)

@@ -24,6 +24,8 @@ type Services struct {
 	Status   halfmark.StatusService // the front page
 	Events   EventService           // service events
 	Charts   ChartService           // series charts (nil: the chart route answers 503)
+	Raw      halfmark.RawService    // raw data behind checks
+	Metrics  *Metrics               // nil: no /metrics
 	Log      *slog.Logger
 	Now      func() time.Time
 }
@@ -42,6 +44,10 @@ func New(s Services) *echo.Echo {
 	e.HidePort = true
 	e.HTTPErrorHandler = ErrorHandler(s.Log)
 	h := &handlers{s: s}
+	if s.Metrics != nil {
+		e.Use(s.Metrics.middleware)
+		e.GET("/metrics", echo.WrapHandler(s.Metrics.handler()))
+	}
 	h.routes(e)
 	return e
 }

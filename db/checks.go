@@ -19,7 +19,7 @@ const MaxBatch = 20000
 
 // RecordCheck implements halfmark.CheckService.
 func (d *DB) RecordCheck(ctx context.Context, a halfmark.Actor, c *halfmark.Check) (halfmark.StoredCheck, bool, error) {
-	res, err := d.record(ctx, a, []halfmark.Check{*c}, "")
+	res, err := d.record(ctx, a, []halfmark.Check{*c}, "", nil)
 	if err != nil {
 		return halfmark.StoredCheck{}, false, err
 	}
@@ -36,7 +36,7 @@ func (d *DB) RecordBatch(ctx context.Context, a halfmark.Actor, cs []halfmark.Ch
 		return halfmark.BatchResult{}, halfmark.Invalid("the batch is too large", halfmark.FieldError{Field: "checks",
 			Message: fmt.Sprintf("has %d checks; send at most %d per batch", len(cs), MaxBatch)})
 	}
-	return d.record(ctx, a, cs, "checks")
+	return d.record(ctx, a, cs, "checks", nil)
 }
 
 // Prepare validates checks against the store (machines, beams) and fills
@@ -99,8 +99,10 @@ func (d *DB) Prepare(ctx context.Context, cs []halfmark.Check, prefix string) er
 }
 
 // record stores cs all-or-nothing; replays of stored ids with the same body
-// count as existing, with another body as a conflict.
-func (d *DB) record(ctx context.Context, a halfmark.Actor, cs []halfmark.Check, prefix string) (halfmark.BatchResult, error) {
+// count as existing, with another body as a conflict. after, if not nil,
+// runs in the same transaction once the new checks are written.
+func (d *DB) record(ctx context.Context, a halfmark.Actor, cs []halfmark.Check, prefix string,
+	after func(tx pgx.Tx, isNew map[string]bool) error) (halfmark.BatchResult, error) {
 	if err := d.Prepare(ctx, cs, prefix); err != nil {
 		return halfmark.BatchResult{}, err
 	}
@@ -112,6 +114,7 @@ func (d *DB) record(ctx context.Context, a halfmark.Actor, cs []halfmark.Check, 
 	}
 	cols := struct {
 		id, sup, hash, kind, dev, op, note, geom []string
+		ver                                      []string
 		mach, beam                               []int64
 		at                                       []time.Time
 		ssd, depth, fx, fy, col, gan             []*float64
@@ -132,6 +135,7 @@ func (d *DB) record(ctx context.Context, a halfmark.Actor, cs []halfmark.Check, 
 		cols.op = append(cols.op, c.Operator)
 		cols.note = append(cols.note, c.Note)
 		cols.geom = append(cols.geom, c.Setup.Geometry())
+		cols.ver = append(cols.ver, c.AnalysisVersion)
 		cols.mach = append(cols.mach, c.MachineID)
 		cols.beam = append(cols.beam, c.BeamID)
 		cols.at = append(cols.at, c.MeasuredAt)
@@ -150,16 +154,16 @@ func (d *DB) record(ctx context.Context, a halfmark.Actor, cs []halfmark.Check, 
 	}
 	err := d.tx(ctx, func(tx pgx.Tx) error {
 		rows, err := tx.Query(ctx, `INSERT INTO checks (id, supersedes, body_hash, kind, device, operator, note, geometry,
-				machine_id, beam_id, measured_at, ssd_cm, depth_cm, field_x_cm, field_y_cm, collimator_deg, gantry_deg, edges, created_by)
+				machine_id, beam_id, measured_at, ssd_cm, depth_cm, field_x_cm, field_y_cm, collimator_deg, gantry_deg, edges, analysis_version, created_by)
 			SELECT u.id, NULLIF(u.sup,'')::uuid, u.hash, u.kind, u.dev, u.op, u.note, u.geom, u.mach, u.beam, u.at,
-				u.ssd, u.depth, u.fx, u.fy, u.col, u.gan, u.edges::jsonb, $19
+				u.ssd, u.depth, u.fx, u.fy, u.col, u.gan, u.edges::jsonb, u.ver, $20
 			FROM unnest($1::uuid[], $2::text[], $3::text[], $4::text[], $5::text[], $6::text[], $7::text[], $8::text[],
 				$9::bigint[], $10::bigint[], $11::timestamptz[], $12::float8[], $13::float8[], $14::float8[], $15::float8[],
-				$16::float8[], $17::float8[], $18::text[])
-				AS u(id, sup, hash, kind, dev, op, note, geom, mach, beam, at, ssd, depth, fx, fy, col, gan, edges)
+				$16::float8[], $17::float8[], $18::text[], $19::text[])
+				AS u(id, sup, hash, kind, dev, op, note, geom, mach, beam, at, ssd, depth, fx, fy, col, gan, edges, ver)
 			ON CONFLICT (id) DO NOTHING RETURNING id::text`,
 			cols.id, cols.sup, cols.hash, cols.kind, cols.dev, cols.op, cols.note, cols.geom, cols.mach, cols.beam, cols.at,
-			cols.ssd, cols.depth, cols.fx, cols.fy, cols.col, cols.gan, cols.edges, a.Name)
+			cols.ssd, cols.depth, cols.fx, cols.fy, cols.col, cols.gan, cols.edges, cols.ver, a.Name)
 		if err != nil {
 			return supersedeErr(err)
 		}
@@ -184,7 +188,13 @@ func (d *DB) record(ctx context.Context, a halfmark.Actor, cs []halfmark.Check, 
 		if err := upsertSeries(ctx, tx, cs, isNew); err != nil {
 			return err
 		}
-		return auditChecks(ctx, tx, a, cs, isNew)
+		if err := auditChecks(ctx, tx, a, cs, isNew); err != nil {
+			return err
+		}
+		if after != nil {
+			return after(tx, isNew)
+		}
+		return nil
 	})
 	if err != nil {
 		return halfmark.BatchResult{}, err

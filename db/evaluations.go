@@ -91,8 +91,7 @@ func (d *DB) LoadEvalSeries(ctx context.Context, ids []int64, at time.Time) ([]E
 	if err := rows.Err(); err != nil {
 		return nil, mapErr(err)
 	}
-	prows, err := d.Pool.Query(ctx, `SELECT series_id, measured_at, created_at, value, kind FROM series_points
-		WHERE series_id = ANY($1) ORDER BY series_id, measured_at, created_at`, ids)
+	prows, err := d.Pool.Query(ctx, pointsSQL, ids)
 	if err != nil {
 		return nil, mapErr(err)
 	}
@@ -113,6 +112,28 @@ func (d *DB) LoadEvalSeries(ctx context.Context, ids []int64, at time.Time) ([]E
 	}
 	return out, mapErr(prows.Err())
 }
+
+// pointsSQL reads the current points of the series $1 with the semantics
+// of the series_points view, but visits each check of a (machine, beam,
+// geometry) once for all the series it feeds, instead of once per series:
+// about four times faster for jaw series read together.
+const pointsSQL = `WITH sel AS (SELECT id, machine_id, beam_id, geometry, edge, quantity FROM series WHERE id = ANY($1)),
+	grp AS (SELECT DISTINCT machine_id, beam_id, geometry FROM sel)
+	SELECT s.id, c.measured_at, c.created_at,
+	       CASE s.quantity WHEN 'position' THEN er.iso_position_mm
+	                       WHEN 'penumbra' THEN er.penumbra_mm
+	                       ELSE er.iso_light_position_mm - er.iso_position_mm END,
+	       c.kind
+	FROM grp g
+	JOIN checks c ON c.beam_id = g.beam_id AND c.geometry = g.geometry AND c.machine_id + 0 = g.machine_id
+	CROSS JOIN LATERAL jsonb_to_recordset(c.edges)
+	    AS er(edge text, iso_position_mm float8, penumbra_mm float8, iso_light_position_mm float8)
+	JOIN sel s ON s.machine_id = g.machine_id AND s.beam_id = g.beam_id AND s.geometry = g.geometry AND s.edge = er.edge
+	WHERE NOT EXISTS (SELECT 1 FROM checks x WHERE x.supersedes = c.id)
+	  AND CASE s.quantity WHEN 'position' THEN true
+	                      WHEN 'penumbra' THEN er.penumbra_mm IS NOT NULL
+	                      ELSE er.iso_light_position_mm IS NOT NULL END
+	ORDER BY s.id, c.measured_at, c.created_at`
 
 // AlertSignal is one rule family firing on a series' newest point.
 type AlertSignal struct {

@@ -2,7 +2,7 @@ package db
 
 import (
 	"context"
-	"strconv"
+	"path"
 	"strings"
 
 	"github.com/jackc/pgx/v5"
@@ -16,34 +16,8 @@ const MaxRawBytes = 64 << 20
 
 // AttachRaw implements halfmark.RawService.
 func (d *DB) AttachRaw(ctx context.Context, a halfmark.Actor, r *halfmark.RawData) error {
-	var f halfmark.Fields
-	if !halfmark.IsUUID(r.CheckID) {
-		f.Add("check_id", "must be the UUID of a stored check (got %q)", r.CheckID)
-	}
-	switch r.Kind {
-	case halfmark.RawProfile, halfmark.RawImage, halfmark.RawPicket:
-	default:
-		f.Add("kind", "must be profile, image or picket (got %q)", r.Kind)
-	}
-	r.Filename = strings.TrimSpace(r.Filename)
-	if r.Filename == "" || len(r.Filename) > 255 || strings.ContainsAny(r.Filename, "\x00\r\n") {
-		f.Add("filename", "is required: the uploaded file's name, at most 255 characters on one line")
-	}
-	if len(r.Content) == 0 {
-		f.Add("content", "is empty; upload the measured file")
-	}
-	if len(r.Content) > MaxRawBytes {
-		f.Add("content", "is %d bytes; at most %d are kept", len(r.Content), MaxRawBytes)
-	}
-	if err := f.Err("the raw data is not valid"); err != nil {
+	if err := validateRaw(r, true); err != nil {
 		return err
-	}
-	var opts, an any
-	if len(r.Options) > 0 {
-		opts = []byte(r.Options)
-	}
-	if len(r.Analysis) > 0 {
-		an = []byte(r.Analysis)
 	}
 	return d.tx(ctx, func(tx pgx.Tx) error {
 		var n int
@@ -53,16 +27,37 @@ func (d *DB) AttachRaw(ctx context.Context, a halfmark.Actor, r *halfmark.RawDat
 		if n == 0 {
 			return halfmark.Invalid("the raw data is not valid", halfmark.FieldError{Field: "check_id", Message: "check " + r.CheckID + " does not exist; store the check first"})
 		}
-		err := tx.QueryRow(ctx, `INSERT INTO raw_data (check_id, kind, filename, content, options, analysis, analysis_version, created_by)
-			VALUES ($1,$2,$3,$4,$5::jsonb,$6::jsonb,$7,$8) RETURNING id, created_at`,
-			r.CheckID, string(r.Kind), r.Filename, r.Content, opts, an, r.AnalysisVersion, a.Name).Scan(&r.ID, &r.CreatedAt)
-		if err != nil {
-			return err
-		}
-		r.CreatedBy = a.Name
-		return audit(ctx, tx, a, "attach", "raw_data", strconv.FormatInt(r.ID, 10),
-			map[string]any{"check_id": r.CheckID, "kind": r.Kind, "filename": r.Filename, "bytes": len(r.Content)})
+		return insertRaw(ctx, tx, a, r)
 	})
+}
+
+// validateRaw checks raw data before it is stored; withCheck also requires
+// its check id (absent while the check is being stored with it).
+func validateRaw(r *halfmark.RawData, withCheck bool) error {
+	var f halfmark.Fields
+	if withCheck && !halfmark.IsUUID(r.CheckID) {
+		f.Add("check_id", "must be the UUID of a stored check (got %q)", r.CheckID)
+	}
+	switch r.Kind {
+	case halfmark.RawProfile, halfmark.RawImage, halfmark.RawPicket:
+	default:
+		f.Add("kind", "must be profile, image or picket (got %q)", r.Kind)
+	}
+	// Keep only the base name: a path in an uploaded name means nothing here.
+	r.Filename = strings.TrimSpace(path.Base(strings.ReplaceAll(r.Filename, "\\", "/")))
+	if r.Filename == "." || r.Filename == "/" {
+		r.Filename = ""
+	}
+	if r.Filename == "" || len(r.Filename) > 255 || strings.ContainsAny(r.Filename, "\x00\r\n") {
+		f.Add("filename", "is required: the uploaded file's name, at most 255 characters on one line")
+	}
+	if len(r.Content) == 0 {
+		f.Add("content", "is empty; upload the measured file")
+	}
+	if len(r.Content) > MaxRawBytes {
+		f.Add("content", "is %d bytes; at most %d are kept", len(r.Content), MaxRawBytes)
+	}
+	return f.Err("the raw data is not valid")
 }
 
 const rawCols = `id, check_id::text, kind, filename, options, analysis, analysis_version, created_at, created_by`

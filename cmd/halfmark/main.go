@@ -45,6 +45,8 @@ func commands() []command {
 		{"user", "add a dashboard user: user add --email E --role R [--password-stdin]", cmdUser},
 		{"import", "import records: import checks FILE.csv", cmdImport},
 		{"analyze", "analyse raw data: analyze profile|image|picket FILE", cmdAnalyze},
+		{"probe", "health check for containers: probe URL, or probe --database", cmdProbe},
+		{"spc", "control-chart a series file: spc --method imr|ewma|cusum|trend FILE", cmdSPC},
 	}
 }
 

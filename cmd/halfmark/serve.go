@@ -13,9 +13,10 @@ import (
 
 // serveFlags are shared by serve, api and worker.
 type serveFlags struct {
-	addr string
-	db   dbFlags
-	log  logFlags
+	addr   string
+	db     dbFlags
+	log    logFlags
+	worker workerFlags
 }
 
 func cmdServe(ctx context.Context, e env) error  { return serveParts(ctx, e, "serve", true, true) }
@@ -28,6 +29,7 @@ func serveParts(ctx context.Context, e env, name string, withHTTP, withWorker bo
 	fs.StringVar(&f.addr, "addr", "127.0.0.1:8080", "listening address of the API and dashboard")
 	f.db.register(fs)
 	f.log.register(fs)
+	f.worker.register(fs, name == "worker")
 	if err := parseFlags(fs, e); err != nil {
 		return err
 	}
@@ -40,6 +42,13 @@ func serveParts(ctx context.Context, e env, name string, withHTTP, withWorker bo
 		return err
 	}
 	defer st.Close()
+	wk, err := f.worker.build(e, st, log)
+	if err != nil {
+		return err
+	}
+	if f.worker.once {
+		return wk.RunOnce(ctx)
+	}
 
 	errc := make(chan error, 2)
 	var srv *http.Server
@@ -48,10 +57,23 @@ func serveParts(ctx context.Context, e env, name string, withHTTP, withWorker bo
 		if err != nil {
 			return fmt.Errorf("listen on %s: %w (is another halfmark running? choose another --addr)", f.addr, err)
 		}
-		h := api.New(api.Services{Machines: st, Checks: st, Series: st, Auth: st, Audit: st, Pinger: st, Log: log})
+		h := api.New(api.Services{Machines: st, Checks: st, Series: st, Auth: st, Audit: st, Pinger: st, Log: log,
+			Alerts: st, Status: st, Events: st, Charts: wk})
 		srv = &http.Server{Handler: h, ReadHeaderTimeout: 10 * time.Second, ReadTimeout: 60 * time.Second}
 		fmt.Fprintf(e.stdout, "Halfmark is listening on http://%s (API under /api/v1)\n", ln.Addr())
 		go func() { errc <- srv.Serve(ln) }()
+	}
+	wdone := make(chan struct{})
+	if withWorker {
+		go func() {
+			defer close(wdone)
+			if err := wk.Start(ctx); err != nil {
+				errc <- err
+			}
+		}()
+	} else {
+		go wk.ReloadOnSIGHUP(ctx) // charts use the book: reload it, and do not die of SIGHUP
+		close(wdone)
 	}
 	log.Info("started", "command", name)
 	select {
@@ -67,5 +89,6 @@ func serveParts(ctx context.Context, e env, name string, withHTTP, withWorker bo
 		defer cancel()
 		_ = srv.Shutdown(sctx)
 	}
+	<-wdone // the schedule stops after its running jobs finish
 	return nil
 }

@@ -1,0 +1,57 @@
+package main
+
+import (
+	"context"
+	"flag"
+	"fmt"
+	"log/slog"
+	"time"
+
+	"github.com/jackc/pgx/v5"
+
+	"halfmark"
+	"halfmark/worker"
+	"halfmark/worker/notify"
+)
+
+// workerFlags configure the drift engine and its schedule. Notification
+// settings come from HALFMARK_SMTP_*, HALFMARK_WEBHOOK_* and
+// HALFMARK_NOTIFY_LEVEL1..3 (see notify.ConfigFromEnv).
+type workerFlags struct {
+	tolerances string
+	timezone   string
+	once       bool
+}
+
+func (w *workerFlags) register(fs *flag.FlagSet, withOnce bool) {
+	fs.StringVar(&w.tolerances, "tolerances", "", "tolerance book (TOML, see deploy/tolerances.example.toml); empty: the shipped AAPM TG-142 example. SIGHUP reloads it")
+	fs.StringVar(&w.timezone, "timezone", "Local", "site time zone of the schedule (IANA name such as Europe/Berlin, or Local)")
+	if withOnce {
+		fs.BoolVar(&w.once, "once", false, "run one evaluation and one notification delivery, then exit")
+	}
+}
+
+// build makes the worker with its notification hooks.
+func (w workerFlags) build(e env, st *store, log *slog.Logger) (*worker.Worker, error) {
+	loc, err := time.LoadLocation(w.timezone)
+	if err != nil {
+		return nil, exitUsage{fmt.Errorf("--timezone %q: %v; use an IANA name such as Europe/Berlin, or Local", w.timezone, err)}
+	}
+	ncfg, err := notify.ConfigFromEnv(e.getenv)
+	if err != nil {
+		return nil, err
+	}
+	ncfg.Location = loc
+	deliverer := notify.New(st.Pool, ncfg, log)
+	return worker.New(st.DB, worker.Config{
+		TolerancesPath: w.tolerances,
+		Location:       loc,
+		EnqueueAlert: func(ctx context.Context, tx pgx.Tx, al halfmark.Alert) error {
+			return notify.EnqueueAlert(ctx, tx, al, ncfg)
+		},
+		EnqueueDigest: func(ctx context.Context, day time.Time, loc *time.Location) error {
+			return notify.EnqueueDigest(ctx, st.Pool, day, loc, ncfg)
+		},
+		Deliver: deliverer.RunOnce,
+	}, log)
+}

@@ -1,0 +1,109 @@
+package worker
+
+import (
+	"context"
+	"fmt"
+	"log/slog"
+	"os"
+	"os/signal"
+	"syscall"
+	"time"
+
+	"github.com/robfig/cron/v3"
+)
+
+// Job names, as recorded in job_runs.
+const (
+	JobIncremental = "evaluate-incremental"
+	JobFull        = "evaluate-full"
+	JobDigest      = "digest"
+	JobDelivery    = "deliver"
+)
+
+// Start runs the schedule until ctx ends, and reloads the tolerance book
+// on SIGHUP. Every job runs through RunSlot, so a tick runs on one worker
+// only; cron.SkipIfStillRunning drops a tick while the previous run of the
+// same job is still busy, cron.Recover turns a panic into a log line.
+func (w *Worker) Start(ctx context.Context) error {
+	logger := cronLogger{w.log}
+	c := cron.New(cron.WithLocation(w.cfg.Location), cron.WithLogger(logger),
+		cron.WithChain(cron.Recover(logger), cron.SkipIfStillRunning(logger)))
+	jobs := []struct {
+		name, spec string
+		slot       time.Duration
+		run        func(ctx context.Context) (string, error)
+	}{
+		{JobIncremental, w.cfg.IncrementalSpec, time.Minute, func(ctx context.Context) (string, error) {
+			s, err := w.Evaluate(ctx, false)
+			return s.String(), err
+		}},
+		{JobFull, w.cfg.FullSpec, time.Minute, func(ctx context.Context) (string, error) {
+			s, err := w.Evaluate(ctx, true)
+			return s.String(), err
+		}},
+		{JobDigest, w.cfg.DigestSpec, time.Minute, func(ctx context.Context) (string, error) {
+			if w.cfg.EnqueueDigest == nil {
+				return "no digest configured", nil
+			}
+			return "digest queued", w.cfg.EnqueueDigest(ctx, w.cfg.Now(), w.cfg.Location)
+		}},
+		{JobDelivery, w.cfg.DeliverySpec, 30 * time.Second, func(ctx context.Context) (string, error) {
+			if w.cfg.Deliver == nil {
+				return "no delivery configured", nil
+			}
+			n, err := w.cfg.Deliver(ctx)
+			return fmt.Sprintf("%d delivered", n), err
+		}},
+	}
+	for _, j := range jobs {
+		if _, err := c.AddFunc(j.spec, func() {
+			slot := w.cfg.Now().Truncate(j.slot)
+			if _, err := w.RunSlot(ctx, j.name, slot, j.run); err != nil {
+				w.log.Error("job failed", "job", j.name, "slot", slot, "err", err)
+			}
+		}); err != nil {
+			return fmt.Errorf("schedule %s %q: %w", j.name, j.spec, err)
+		}
+	}
+	c.Start()
+	w.log.Info("worker started", "worker", w.cfg.WorkerID, "timezone", w.cfg.Location.String(),
+		"incremental", w.cfg.IncrementalSpec, "full", w.cfg.FullSpec, "digest", w.cfg.DigestSpec, "delivery", w.cfg.DeliverySpec)
+	w.ReloadOnSIGHUP(ctx)
+	<-c.Stop().Done()
+	return nil
+}
+
+// ReloadOnSIGHUP reloads the tolerance book on every SIGHUP until ctx
+// ends (Start calls it; a process that serves charts without the schedule
+// calls it itself, so that SIGHUP does not end it).
+func (w *Worker) ReloadOnSIGHUP(ctx context.Context) {
+	hup := make(chan os.Signal, 1)
+	signal.Notify(hup, syscall.SIGHUP)
+	defer signal.Stop(hup)
+	for {
+		select {
+		case <-ctx.Done():
+			return
+		case <-hup:
+			_ = w.Reload() // logged; a bad file keeps the old book
+		}
+	}
+}
+
+// RunSlot runs job for one scheduled slot unless another worker has
+// claimed it (db.ClaimSlot); ran says whether this worker ran it.
+func (w *Worker) RunSlot(ctx context.Context, job string, slot time.Time, run func(context.Context) (string, error)) (ran bool, err error) {
+	ran, err = w.db.ClaimSlot(ctx, job, slot, w.cfg.WorkerID, run)
+	if ran && err == nil {
+		w.log.Debug("job done", "job", job, "slot", slot)
+	}
+	return ran, err
+}
+
+// cronLogger adapts slog to cron.Logger.
+type cronLogger struct{ l *slog.Logger }
+
+func (c cronLogger) Info(msg string, kv ...any) { c.l.Debug("cron: "+msg, kv...) }
+func (c cronLogger) Error(err error, msg string, kv ...any) {
+	c.l.Error("cron: "+msg, append(kv, "err", err)...)
+}

@@ -1,0 +1,150 @@
+// Package worker runs Halfmark's scheduled work: evaluation of every series
+// against its baseline and the tolerance book (analysis/drift), the alert
+// lifecycle that follows from it (db), the morning digest and the delivery
+// of queued notifications. Each scheduled tick runs on exactly one worker
+// process, however many are started (db.ClaimSlot).
+package worker
+
+import (
+	"context"
+	"fmt"
+	"log/slog"
+	"os"
+	"sync/atomic"
+	"time"
+
+	"halfmark"
+	"halfmark/analysis/drift"
+	"halfmark/db"
+)
+
+// Config configures a Worker. Zero fields take the defaults.
+type Config struct {
+	TolerancesPath string         // "" : the shipped example
+	Location       *time.Location // site time zone of the schedule; nil: time.Local
+	WorkerID       string         // names this process in job_runs; "": host:pid
+
+	// Cron specifications (robfig/cron, five fields or @every).
+	IncrementalSpec string // default "* * * * *": series with new points
+	FullSpec        string // default "30 2 * * *": every series
+	DigestSpec      string // default "0 7 * * *": the Level 1 digest
+	DeliverySpec    string // default "@every 30s": send queued notifications
+
+	Drift drift.Options // chart designs; Now is set per run
+	// Status says when a check is overdue (overdue alerts); zero fields
+	// take db.DefaultStatusOptions, Location the schedule's.
+	Status db.StatusOptions
+	// BatchSize is how many series are read, evaluated and stored together
+	// (default 250).
+	BatchSize int
+
+	// Notification hooks (nil: none). EnqueueAlert runs inside the alert's
+	// transaction for alerts opened or escalated to Level 2 or 3.
+	EnqueueAlert  db.AlertHook
+	EnqueueDigest func(ctx context.Context, day time.Time, loc *time.Location) error
+	Deliver       func(ctx context.Context) (int, error)
+
+	Now func() time.Time // nil: time.Now
+}
+
+func (c Config) withDefaults() Config {
+	if c.Location == nil {
+		c.Location = time.Local
+	}
+	if c.WorkerID == "" {
+		h, _ := os.Hostname()
+		c.WorkerID = fmt.Sprintf("%s:%d", h, os.Getpid())
+	}
+	if c.IncrementalSpec == "" {
+		c.IncrementalSpec = "* * * * *"
+	}
+	if c.FullSpec == "" {
+		c.FullSpec = "30 2 * * *"
+	}
+	if c.DigestSpec == "" {
+		c.DigestSpec = "0 7 * * *"
+	}
+	if c.DeliverySpec == "" {
+		c.DeliverySpec = "@every 30s"
+	}
+	if c.Status.MorningInterval == 0 {
+		c.Status.MorningInterval = db.DefaultStatusOptions.MorningInterval
+		c.Status.MorningGrace = db.DefaultStatusOptions.MorningGrace
+		c.Status.SkipWeekends = db.DefaultStatusOptions.SkipWeekends
+	}
+	if c.Status.MonthlyInterval == 0 {
+		c.Status.MonthlyInterval = db.DefaultStatusOptions.MonthlyInterval
+	}
+	if c.Status.Location == nil {
+		c.Status.Location = c.Location
+	}
+	if c.BatchSize <= 0 {
+		c.BatchSize = 250
+	}
+	if c.Now == nil {
+		c.Now = time.Now
+	}
+	return c
+}
+
+// Worker evaluates series and runs the schedule.
+type Worker struct {
+	db   *db.DB
+	cfg  Config
+	log  *slog.Logger
+	book atomic.Pointer[Tolerances]
+}
+
+// New loads the tolerance book and returns a worker; it does not start the
+// schedule (see Start).
+func New(d *db.DB, cfg Config, log *slog.Logger) (*Worker, error) {
+	if log == nil {
+		log = slog.Default()
+	}
+	w := &Worker{db: d, cfg: cfg.withDefaults(), log: log}
+	b, err := LoadTolerances(cfg.TolerancesPath)
+	if err != nil {
+		return nil, err
+	}
+	w.book.Store(b)
+	if b.IsShippedExample() {
+		log.Warn("no --tolerances file: the shipped example (AAPM TG-142 defaults) is in force; the local physicist should review it", "hash", b.Hash())
+	} else {
+		log.Info("tolerances loaded", "file", b.Source(), "hash", b.Hash())
+	}
+	return w, nil
+}
+
+// Tolerances returns the book in force.
+func (w *Worker) Tolerances() halfmark.ToleranceBook { return w.book.Load() }
+
+// Reload re-reads the tolerance file. A bad file is refused (the error
+// names the line) and the book in force stays.
+func (w *Worker) Reload() error {
+	b, err := LoadTolerances(w.cfg.TolerancesPath)
+	if err != nil {
+		w.log.Error("tolerance file refused; the previous book stays in force", "err", err, "hash", w.book.Load().Hash())
+		return err
+	}
+	old := w.book.Swap(b)
+	w.log.Info("tolerances reloaded", "file", b.Source(), "hash", b.Hash(), "previous_hash", old.Hash())
+	return nil
+}
+
+// RunOnce runs one incremental evaluation and one delivery round, outside
+// the schedule (halfmark worker --once).
+func (w *Worker) RunOnce(ctx context.Context) error {
+	s, err := w.Evaluate(ctx, false)
+	if err != nil {
+		return err
+	}
+	w.log.Info("evaluation done", "series", s.Series, "points", s.Points, "level1", s.Levels[1], "level2", s.Levels[2], "level3", s.Levels[3])
+	if w.cfg.Deliver != nil {
+		n, err := w.cfg.Deliver(ctx)
+		if err != nil {
+			return fmt.Errorf("deliver notifications: %w", err)
+		}
+		w.log.Info("notifications delivered", "count", n)
+	}
+	return nil
+}
