@@ -3,8 +3,8 @@ package halfmark
 import (
 	"context"
 	"crypto/sha256"
+	"encoding/binary"
 	"encoding/hex"
-	"encoding/json"
 	"fmt"
 	"math"
 	"strconv"
@@ -262,29 +262,48 @@ func (c *Check) Project(sadCm float64, project func(x, sadCm, ssdCm, depthCm flo
 }
 
 // BodyHash is a fingerprint of what the client sent (not the derived
-// fields), used to tell an idempotent replay from a conflicting one.
+// fields), used to tell an idempotent replay from a conflicting one: the
+// SHA-256 of every sent field in a fixed binary layout (lengths before
+// strings, a presence byte before each optional number).
 func (c *Check) BodyHash() string {
-	type edge struct {
-		E string
-		P float64
-		N *float64
-		L *float64
+	h := sha256.New()
+	var buf [8]byte
+	i64 := func(v int64) {
+		binary.LittleEndian.PutUint64(buf[:], uint64(v))
+		h.Write(buf[:])
 	}
-	v := struct {
-		M, B       int64
-		K          CheckKind
-		T          int64
-		D, O, Note string
-		S          Setup
-		E          []edge
-		Sup        string
-	}{c.MachineID, c.BeamID, c.Kind, c.MeasuredAt.UnixNano(), c.Device, c.Operator, c.Note, c.Setup, nil, c.Supersedes}
+	f64 := func(v float64) { i64(int64(math.Float64bits(v))) }
+	str := func(s string) {
+		i64(int64(len(s)))
+		h.Write([]byte(s))
+	}
+	opt := func(p *float64) {
+		if p == nil {
+			h.Write([]byte{0})
+			return
+		}
+		h.Write([]byte{1})
+		f64(*p)
+	}
+	i64(c.MachineID)
+	i64(c.BeamID)
+	str(string(c.Kind))
+	i64(c.MeasuredAt.UnixNano())
+	str(c.Device)
+	str(c.Operator)
+	str(c.Note)
+	str(c.Supersedes)
+	for _, p := range []*float64{c.Setup.SSDcm, c.Setup.DepthCm, c.Setup.FieldXcm, c.Setup.FieldYcm, c.Setup.CollimatorDeg, c.Setup.GantryDeg} {
+		opt(p)
+	}
+	i64(int64(len(c.Edges)))
 	for _, e := range c.Edges {
-		v.E = append(v.E, edge{e.Edge, e.PositionMM, e.PenumbraMM, e.LightPositionMM})
+		str(e.Edge)
+		f64(e.PositionMM)
+		opt(e.PenumbraMM)
+		opt(e.LightPositionMM)
 	}
-	b, _ := json.Marshal(v)
-	sum := sha256.Sum256(b)
-	return hex.EncodeToString(sum[:])
+	return hex.EncodeToString(h.Sum(nil))
 }
 
 // IsUUID reports whether s has the 8-4-4-4-12 hexadecimal UUID form.

@@ -2,13 +2,13 @@ package db
 
 import (
 	"context"
-	"encoding/json"
+	"errors"
 	"fmt"
 	"strings"
-	"time"
 
 	"github.com/google/uuid"
 	"github.com/jackc/pgx/v5"
+	"github.com/jackc/pgx/v5/pgconn"
 
 	"halfmark"
 	"halfmark/analysis"
@@ -111,79 +111,55 @@ func (d *DB) record(ctx context.Context, a halfmark.Actor, cs []halfmark.Check, 
 	hashes := make([]string, n)
 	for i := range cs {
 		hashes[i] = cs[i].BodyHash()
+		res.IDs[i] = cs[i].ID
 	}
-	cols := struct {
-		id, sup, hash, kind, dev, op, note, geom []string
-		ver                                      []string
-		mach, beam                               []int64
-		at                                       []time.Time
-		ssd, depth, fx, fy, col, gan             []*float64
-		edges                                    []string
-	}{}
-	for i := range cs {
-		c := &cs[i]
-		res.IDs[i] = c.ID
-		cols.id = append(cols.id, c.ID)
-		var sup string
-		if c.Supersedes != "" {
-			sup = c.Supersedes
-		}
-		cols.sup = append(cols.sup, sup)
-		cols.hash = append(cols.hash, hashes[i])
-		cols.kind = append(cols.kind, string(c.Kind))
-		cols.dev = append(cols.dev, c.Device)
-		cols.op = append(cols.op, c.Operator)
-		cols.note = append(cols.note, c.Note)
-		cols.geom = append(cols.geom, c.Setup.Geometry())
-		cols.ver = append(cols.ver, c.AnalysisVersion)
-		cols.mach = append(cols.mach, c.MachineID)
-		cols.beam = append(cols.beam, c.BeamID)
-		cols.at = append(cols.at, c.MeasuredAt)
-		s := c.Setup
-		cols.ssd = append(cols.ssd, s.SSDcm)
-		cols.depth = append(cols.depth, s.DepthCm)
-		cols.fx = append(cols.fx, s.FieldXcm)
-		cols.fy = append(cols.fy, s.FieldYcm)
-		cols.col = append(cols.col, s.CollimatorDeg)
-		cols.gan = append(cols.gan, s.GantryDeg)
-		ej, err := json.Marshal(c.Edges)
-		if err != nil {
-			return halfmark.BatchResult{}, err
-		}
-		cols.edges = append(cols.edges, string(ej))
+	out, err := d.insertChecks(ctx, a, cs, hashes, res, after)
+	if errors.Is(err, errRaced) {
+		out, err = d.insertChecks(ctx, a, cs, hashes, res, after)
 	}
+	if errors.Is(err, errRaced) {
+		err = &halfmark.Error{Code: halfmark.EUnavailable, Message: "another request is storing the same check; retry", Err: err}
+	}
+	return out, err
+}
+
+// errRaced says another transaction stored one of the same check ids first.
+var errRaced = errors.New("a concurrent request stored the same check id")
+
+// insertChecks writes the checks not yet stored with COPY, after reading
+// which ids exist: a stored id with the same body hash is a replay, with
+// another a conflict. If a concurrent request stores one of the ids
+// between the read and the COPY, the unique key refuses it and the caller
+// tries once more (errRaced).
+func (d *DB) insertChecks(ctx context.Context, a halfmark.Actor, cs []halfmark.Check, hashes []string, res halfmark.BatchResult,
+	after func(tx pgx.Tx, isNew map[string]bool) error) (halfmark.BatchResult, error) {
+	n := len(cs)
 	err := d.tx(ctx, func(tx pgx.Tx) error {
-		rows, err := tx.Query(ctx, `INSERT INTO checks (id, supersedes, body_hash, kind, device, operator, note, geometry,
-				machine_id, beam_id, measured_at, ssd_cm, depth_cm, field_x_cm, field_y_cm, collimator_deg, gantry_deg, edges, analysis_version, created_by)
-			SELECT u.id, NULLIF(u.sup,'')::uuid, u.hash, u.kind, u.dev, u.op, u.note, u.geom, u.mach, u.beam, u.at,
-				u.ssd, u.depth, u.fx, u.fy, u.col, u.gan, u.edges::jsonb, u.ver, $20
-			FROM unnest($1::uuid[], $2::text[], $3::text[], $4::text[], $5::text[], $6::text[], $7::text[], $8::text[],
-				$9::bigint[], $10::bigint[], $11::timestamptz[], $12::float8[], $13::float8[], $14::float8[], $15::float8[],
-				$16::float8[], $17::float8[], $18::text[], $19::text[])
-				AS u(id, sup, hash, kind, dev, op, note, geom, mach, beam, at, ssd, depth, fx, fy, col, gan, edges, ver)
-			ON CONFLICT (id) DO NOTHING RETURNING id::text`,
-			cols.id, cols.sup, cols.hash, cols.kind, cols.dev, cols.op, cols.note, cols.geom, cols.mach, cols.beam, cols.at,
-			cols.ssd, cols.depth, cols.fx, cols.fy, cols.col, cols.gan, cols.edges, cols.ver, a.Name)
+		stored, err := storedHashes(ctx, tx, res.IDs)
 		if err != nil {
-			return supersedeErr(err)
+			return err
 		}
-		created, err := pgx.CollectRows(rows, pgx.RowTo[string])
-		if err != nil {
-			return supersedeErr(err)
-		}
-		isNew := make(map[string]bool, len(created))
-		for _, id := range created {
-			isNew[id] = true
-		}
-		res.Created = len(created)
-		res.Existing = n - len(created)
-		if res.Existing > 0 {
-			if err := checkReplays(ctx, tx, cs, hashes, isNew); err != nil {
-				return err
+		isNew := make(map[string]bool, n)
+		var conflicts []string
+		for i := range cs {
+			h, ok := stored[cs[i].ID]
+			switch {
+			case !ok:
+				isNew[cs[i].ID] = true
+			case h != hashes[i]:
+				conflicts = append(conflicts, cs[i].ID)
 			}
 		}
+		if len(conflicts) > 0 {
+			return conflictErr(conflicts)
+		}
+		res.Created = len(isNew)
+		res.Existing = n - res.Created
 		if res.Created == 0 {
 			return nil
+		}
+		if _, err := tx.CopyFrom(ctx, pgx.Identifier{"checks"}, checkColumns, &checkRows{cs: cs, hashes: hashes, isNew: isNew, by: a.Name}); err != nil {
+			return copyErr(err)
 		}
 		if err := upsertSeries(ctx, tx, cs, isNew); err != nil {
 			return err
@@ -202,33 +178,35 @@ func (d *DB) record(ctx context.Context, a halfmark.Actor, cs []halfmark.Check, 
 	return res, nil
 }
 
-// checkReplays compares the body hash of every already-stored id.
-func checkReplays(ctx context.Context, tx pgx.Tx, cs []halfmark.Check, hashes []string, isNew map[string]bool) error {
-	var ids, hs []string
-	for i := range cs {
-		if !isNew[cs[i].ID] {
-			ids = append(ids, cs[i].ID)
-			hs = append(hs, hashes[i])
-		}
-	}
-	rows, err := tx.Query(ctx, `SELECT u.id::text FROM unnest($1::uuid[], $2::text[]) AS u(id, hash)
-		JOIN checks c ON c.id = u.id WHERE c.body_hash <> u.hash`, ids, hs)
+// storedHashes returns the body hash of each id already stored.
+func storedHashes(ctx context.Context, tx pgx.Tx, ids []string) (map[string]string, error) {
+	rows, err := tx.Query(ctx, `SELECT id::text, body_hash FROM checks WHERE id = ANY($1::text[]::uuid[])`, ids)
 	if err != nil {
-		return err
+		return nil, err
 	}
-	bad, err := pgx.CollectRows(rows, pgx.RowTo[string])
-	if err != nil {
-		return err
+	out := map[string]string{}
+	var id, h string
+	_, err = pgx.ForEachRow(rows, []any{&id, &h}, func() error { out[id] = h; return nil })
+	return out, err
+}
+
+func conflictErr(ids []string) error {
+	if len(ids) > 5 {
+		ids = append(ids[:5], "…")
 	}
-	if len(bad) > 0 {
-		if len(bad) > 5 {
-			bad = append(bad[:5], "…")
-		}
-		return halfmark.Errorf(halfmark.EConflict,
-			"check id %s is already stored with different content; to correct a stored check send a new check with \"supersedes\" set to its id",
-			strings.Join(bad, ", "))
+	return halfmark.Errorf(halfmark.EConflict,
+		"check id %s is already stored with different content; to correct a stored check send a new check with \"supersedes\" set to its id",
+		strings.Join(ids, ", "))
+}
+
+// copyErr explains a refused COPY: a raced id, a check corrected twice, or
+// a correction of a check that does not exist.
+func copyErr(err error) error {
+	var pe *pgconn.PgError
+	if errors.As(err, &pe) && pe.Code == "23505" && pe.ConstraintName == "checks_pkey" {
+		return errRaced
 	}
-	return nil
+	return supersedeErr(err)
 }
 
 func supersedeErr(err error) error {

@@ -61,17 +61,20 @@ func formatRow(m halfmark.MachineStatus) frontRow {
 
 // front lists the machines that need attention first.
 func (s *server) front(c echo.Context) error {
-	rows, err := s.status.get(c.Request().Context(), time.Now(), s.loadStatus)
+	v, err := s.status.get(c.Request().Context(), time.Now(), s.loadStatus)
 	if err != nil {
 		return s.failErr(c, err)
 	}
-	fr := make([]frontRow, len(rows))
-	for i, r := range rows {
-		fr[i] = formatRow(r)
-	}
-	p := s.page(c, "Machines", frontData{At: s.d.Now().Local().Format("15:04"), Rows: fr, Body: tableRows(fr)})
+	p := s.page(c, "Machines", frontData{At: v.at.Local().Format("15:04:05"), Rows: v.rows, Body: v.body})
 	p.Refresh = frontRefreshSeconds
 	return s.renderPage(c, http.StatusOK, "front", p)
+}
+
+// statusView is one answer of the status service, formatted for the page.
+type statusView struct {
+	at   time.Time
+	rows []frontRow
+	body template.HTML
 }
 
 func (s *server) loadStatus(ctx context.Context) ([]halfmark.MachineStatus, error) {
@@ -97,32 +100,33 @@ const statusCacheTTL = 5 * time.Second
 // statusCache keeps the newest front-page rows; one caller loads while the
 // others wait for it.
 type statusCache struct {
-	mu   sync.Mutex
-	at   time.Time
-	rows []halfmark.MachineStatus
+	mu sync.Mutex
+	v  *statusView
 }
 
-func (c *statusCache) get(ctx context.Context, now time.Time, load func(context.Context) ([]halfmark.MachineStatus, error)) ([]halfmark.MachineStatus, error) {
+func (c *statusCache) get(ctx context.Context, now time.Time, load func(context.Context) ([]halfmark.MachineStatus, error)) (*statusView, error) {
 	c.mu.Lock()
 	defer c.mu.Unlock()
-	if c.rows != nil && now.Sub(c.at) < statusCacheTTL && !now.Before(c.at) {
-		return c.rows, nil
+	if c.v != nil && now.Sub(c.v.at) < statusCacheTTL && !now.Before(c.v.at) {
+		return c.v, nil
 	}
 	rows, err := load(ctx)
 	if err != nil {
 		return nil, err
 	}
-	if rows == nil {
-		rows = []halfmark.MachineStatus{}
+	v := &statusView{at: now, rows: make([]frontRow, len(rows))}
+	for i, r := range rows {
+		v.rows[i] = formatRow(r)
 	}
-	c.rows, c.at = rows, now
-	return rows, nil
+	v.body = tableRows(v.rows)
+	c.v = v
+	return v, nil
 }
 
 // invalidate makes the next front page ask the status service again.
 func (c *statusCache) invalidate() {
 	c.mu.Lock()
-	c.rows = nil
+	c.v = nil
 	c.mu.Unlock()
 }
 
