@@ -30,6 +30,9 @@ type EvalSeries struct {
 	ValuesMM      []float64
 	Kinds         []halfmark.CheckKind
 	LastCreatedAt time.Time // newest checks.created_at among the points
+	// FamilySize is the number of series of the machine: the family whose
+	// false alarms the statistical charts keep near one series' rate.
+	FamilySize int
 }
 
 // SeriesToEvaluate lists the series to evaluate: all of them, or with
@@ -63,7 +66,8 @@ func (d *DB) LoadEvalSeries(ctx context.Context, ids []int64, at time.Time) ([]E
 		return nil, nil
 	}
 	rows, err := d.Pool.Query(ctx, `SELECT s.id, s.machine_id, s.beam_id, s.geometry, s.edge, s.quantity, m.name, m.clinical,
-			b.energy_mv, b.fff, bl.value_mm, bl.sigma_mm, bl.valid_from, st.cusum_restart_at
+			b.energy_mv, b.fff, bl.value_mm, bl.sigma_mm, bl.valid_from, st.cusum_restart_at,
+			(SELECT count(*) FROM series f WHERE f.machine_id = s.machine_id)
 		FROM series s JOIN machines m ON m.id = s.machine_id JOIN beams b ON b.id = s.beam_id
 		LEFT JOIN LATERAL (SELECT value_mm, sigma_mm, valid_from FROM baselines x WHERE x.series_id = s.id AND x.valid_from <= $2
 		                   ORDER BY x.valid_from DESC, x.version DESC LIMIT 1) bl ON true
@@ -80,7 +84,7 @@ func (d *DB) LoadEvalSeries(ctx context.Context, ids []int64, at time.Time) ([]E
 		var energy float64
 		var fff bool
 		if err := rows.Scan(&e.ID, &e.MachineID, &e.BeamID, &e.Geometry, &e.Edge, &q, &e.MachineName, &e.Clinical,
-			&energy, &fff, &e.BaselineValueMM, &e.BaselineSigmaMM, &e.BaselineFrom, &e.CUSUMRestart); err != nil {
+			&energy, &fff, &e.BaselineValueMM, &e.BaselineSigmaMM, &e.BaselineFrom, &e.CUSUMRestart, &e.FamilySize); err != nil {
 			rows.Close()
 			return nil, mapErr(err)
 		}

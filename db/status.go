@@ -117,12 +117,16 @@ func rank(m halfmark.MachineStatus) int {
 	return 0
 }
 
+// worstSeries picks each machine's most urgent series: the highest level,
+// then the soonest projected crossing of a limit (how soon), then the
+// largest deviation as a share of its tolerance (how far).
 func (d *DB) worstSeries(ctx context.Context, out []halfmark.MachineStatus, idx map[int64]int) error {
 	rows, err := d.Pool.Query(ctx, `SELECT DISTINCT ON (s.machine_id) s.machine_id, s.id, s.beam_id, b.energy_mv, b.fff, s.edge, s.quantity,
 			s.geometry, st.deviation_mm, st.tolerance_mm, st.action_mm, st.rule, st.projected_crossing
 		FROM series_state st JOIN series s ON s.id = st.series_id JOIN beams b ON b.id = s.beam_id
 		WHERE st.level > 0 OR st.projected_crossing IS NOT NULL
-		ORDER BY s.machine_id, st.level DESC, abs(st.deviation_mm) / nullif(st.tolerance_mm, 0) DESC NULLS LAST, st.projected_crossing NULLS LAST`)
+		ORDER BY s.machine_id, st.level DESC, st.projected_crossing NULLS LAST,
+			abs(st.deviation_mm) / nullif(st.tolerance_mm, 0) DESC NULLS LAST`)
 	if err != nil {
 		return mapErr(err)
 	}

@@ -104,6 +104,9 @@ func EvaluateSeries(s *db.EvalSeries, book halfmark.ToleranceBook, o drift.Optio
 	asym := Asymmetric(s)
 	det := &Details{Kind: kind, Asymmetric: asym, Tolerances: book.Source(), Shipped: book.IsShippedExample()}
 	in := drift.Input{ValuesMM: s.ValuesMM, Times: s.Times}
+	if o.FamilySize == 0 {
+		o.FamilySize = s.FamilySize
+	}
 	in.Baseline.ValueMM, in.Baseline.SigmaMM = s.BaselineValueMM, s.BaselineSigmaMM
 	if s.BaselineFrom != nil {
 		in.Baseline.Start = *s.BaselineFrom

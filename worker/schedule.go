@@ -6,6 +6,7 @@ import (
 	"log/slog"
 	"os"
 	"os/signal"
+	"strings"
 	"syscall"
 	"time"
 
@@ -33,7 +34,7 @@ func (w *Worker) Start(ctx context.Context) error {
 		slot       time.Duration
 		run        func(ctx context.Context) (string, error)
 	}{
-		{JobIncremental, w.cfg.IncrementalSpec, time.Minute, func(ctx context.Context) (string, error) {
+		{JobIncremental, w.cfg.IncrementalSpec, slotOf(w.cfg.IncrementalSpec, time.Minute), func(ctx context.Context) (string, error) {
 			s, err := w.Evaluate(ctx, false)
 			return s.String(), err
 		}},
@@ -47,7 +48,7 @@ func (w *Worker) Start(ctx context.Context) error {
 			}
 			return "digest queued", w.cfg.EnqueueDigest(ctx, w.cfg.Now(), w.cfg.Location)
 		}},
-		{JobDelivery, w.cfg.DeliverySpec, 30 * time.Second, func(ctx context.Context) (string, error) {
+		{JobDelivery, w.cfg.DeliverySpec, slotOf(w.cfg.DeliverySpec, 30*time.Second), func(ctx context.Context) (string, error) {
 			if w.cfg.Deliver == nil {
 				return "no delivery configured", nil
 			}
@@ -58,8 +59,13 @@ func (w *Worker) Start(ctx context.Context) error {
 	for _, j := range jobs {
 		if _, err := c.AddFunc(j.spec, func() {
 			slot := w.cfg.Now().Truncate(j.slot)
-			if _, err := w.RunSlot(ctx, j.name, slot, j.run); err != nil {
+			start := time.Now()
+			ran, err := w.RunSlot(ctx, j.name, slot, j.run)
+			if err != nil {
 				w.log.Error("job failed", "job", j.name, "slot", slot, "err", err)
+			}
+			if ran && w.cfg.Observe != nil {
+				w.cfg.Observe(j.name, time.Since(start))
 			}
 		}); err != nil {
 			return fmt.Errorf("schedule %s %q: %w", j.name, j.spec, err)
@@ -106,4 +112,16 @@ type cronLogger struct{ l *slog.Logger }
 func (c cronLogger) Info(msg string, kv ...any) { c.l.Debug("cron: "+msg, kv...) }
 func (c cronLogger) Error(err error, msg string, kv ...any) {
 	c.l.Error("cron: "+msg, append(kv, "err", err)...)
+}
+
+// slotOf is the scheduled slot of a job: the interval of an "@every D"
+// spec, else def (the finest step of a cron spec that runs at most once
+// per def).
+func slotOf(spec string, def time.Duration) time.Duration {
+	if d, ok := strings.CutPrefix(spec, "@every "); ok {
+		if v, err := time.ParseDuration(strings.TrimSpace(d)); err == nil && v >= time.Second {
+			return v
+		}
+	}
+	return def
 }

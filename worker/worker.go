@@ -44,6 +44,10 @@ type Config struct {
 	EnqueueDigest func(ctx context.Context, day time.Time, loc *time.Location) error
 	Deliver       func(ctx context.Context) (int, error)
 
+	// Observe, if set, receives the duration of every job run this worker
+	// performed (for the evaluation-duration metric).
+	Observe func(job string, took time.Duration)
+
 	Now func() time.Time // nil: time.Now
 }
 

@@ -56,6 +56,11 @@ type Options struct {
 
 	InControlPoints int // M; 0 means 5
 
+	// FamilySize is the number of series charted together (e.g. every
+	// series of a machine); above 1 the statistical designs are widened to
+	// keep the family's false-alarm rate near one series' (family.go).
+	FamilySize int
+
 	// Now is the evaluation time; projected crossings are compared with
 	// Now + Horizon.
 	Now time.Time

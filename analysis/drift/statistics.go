@@ -14,7 +14,8 @@ import (
 func statistics(v *Verdict, x []float64, t []time.Time, centre, sigma float64, restart time.Time, o Options) error {
 	ch := &v.Chart
 	n := len(x)
-	ucl, lcl := centre+3*sigma, centre-3*sigma
+	L := shewhartL(o.FamilySize)
+	ucl, lcl := centre+L*sigma, centre-L*sigma
 	ch.Sigma, ch.UCL, ch.LCL = fp(sigma), fp(ucl), fp(lcl)
 
 	ew, err := spc.NewEWMAChart(spc.EWMAOptions{Target: centre, Sigma: sigma, Lambda: o.EWMALambda, L: o.EWMAL})
@@ -22,7 +23,14 @@ func statistics(v *Verdict, x []float64, t []time.Time, centre, sigma float64, r
 		return fmt.Errorf("drift: %w", err)
 	}
 	ch.EWMALambda, ch.EWMAL = ew.Lambda(), ew.L()
-	cuOpts := spc.CUSUMOptions{Target: centre, Sigma: sigma, K: o.CUSUMK, H: o.CUSUMH}
+	k, h := o.CUSUMK, o.CUSUMH
+	if k == 0 {
+		k = 0.5
+	}
+	if h == 0 {
+		h = 5
+	}
+	cuOpts := spc.CUSUMOptions{Target: centre, Sigma: sigma, K: k, H: familyH(k, h, o.FamilySize)}
 	cu, err := spc.NewCUSUMChart(cuOpts)
 	if err != nil {
 		return fmt.Errorf("drift: %w", err)
@@ -74,9 +82,9 @@ func statistics(v *Verdict, x []float64, t []time.Time, centre, sigma float64, r
 
 	xn, z := x[n-1], (x[n-1]-centre)/sigma
 	if xn > ucl || xn < lcl {
-		v.add(Signal{FamilyShewhart, fmt.Sprintf("newest value %.1f σ from the baseline (beyond 3σ)", z), halfmark.LevelInspect})
+		v.add(Signal{FamilyShewhart, fmt.Sprintf("newest value %.1f σ from the baseline (beyond %.3gσ)", z, L), halfmark.LevelInspect})
 	}
-	if lastEW.Signal {
+	if lastEW.Signal && o.FamilySize <= 1 {
 		v.add(Signal{FamilyEWMA, fmt.Sprintf("EWMA %.3f mm beyond its limit (%.3f to %.3f mm; λ = %g, L = %g)",
 			lastEW.Z, lastEW.LCL, lastEW.UCL, ew.Lambda(), ew.L()), halfmark.LevelInspect})
 	}

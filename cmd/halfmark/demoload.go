@@ -35,6 +35,10 @@ func loadDemo(ctx context.Context, st *store, end time.Time, w io.Writer) error 
 			beamIDs = append(beamIDs, bb.ID)
 		}
 		items := gen.Items(m, mm.ID, beamIDs)
+		now := time.Now()
+		for len(items) > 0 && itemTime(items[len(items)-1]).After(now) { // today's later checks have not happened yet
+			items = items[:len(items)-1]
+		}
 		var batch []halfmark.Check
 		flush := func() error {
 			if len(batch) == 0 {
@@ -113,7 +117,8 @@ func storeRaw(ctx context.Context, st *store, a halfmark.Actor, it demo.Item) er
 
 // commissioningBaselines sets, for every position and penumbra series of a
 // machine that has a commissioning point, that point as the baseline in
-// force from the commissioning day.
+// force from the commissioning day, with the σ of the commissioning
+// repeatability study.
 func commissioningBaselines(ctx context.Context, st *store, a halfmark.Actor, machineID int64, from time.Time) error {
 	ss, err := st.MachineSeries(ctx, machineID)
 	if err != nil {
@@ -132,7 +137,9 @@ func commissioningBaselines(ctx context.Context, st *store, a halfmark.Actor, ma
 				continue
 			}
 			v := p.Value
-			b := halfmark.Baseline{SeriesID: s.ID, ValueMM: &v, ValidFrom: from, Reason: "commissioning measurement " + p.MeasuredAt.Format(time.DateOnly)}
+			sd := demo.ReproducibilityMM(s.Quantity, s.Edge, s.Geometry)
+			b := halfmark.Baseline{SeriesID: s.ID, ValueMM: &v, SigmaMM: &sd, ValidFrom: from,
+				Reason: "commissioning measurement " + p.MeasuredAt.Format(time.DateOnly) + "; σ from the commissioning repeatability study"}
 			if err := st.SetBaseline(ctx, a, &b); err != nil {
 				return err
 			}
@@ -153,4 +160,11 @@ func bar(n, total int) string {
 		}
 	}
 	return "[" + string(b) + "]"
+}
+
+func itemTime(it demo.Item) time.Time {
+	if it.Event != nil {
+		return it.Event.At
+	}
+	return it.Check.MeasuredAt
 }

@@ -37,6 +37,7 @@ type command struct {
 
 func commands() []command {
 	return []command{
+		{"demo", "load the invented demo clinic into a private database and serve it", cmdDemo},
 		{"serve", "run the API, the dashboard and the worker in one process (the single-machine default)", cmdServe},
 		{"api", "run the API and dashboard only (for scale-out; run workers separately)", cmdAPI},
 		{"worker", "run the scheduled worker only (for scale-out)", cmdWorker},

@@ -3,20 +3,34 @@ package main
 import (
 	"context"
 	"errors"
+	"flag"
 	"fmt"
+	"log/slog"
 	"net"
 	"net/http"
 	"time"
 
+	"halfmark"
 	"halfmark/api"
+	"halfmark/web"
+	"halfmark/worker"
 )
 
-// serveFlags are shared by serve, api and worker.
+// serveFlags are shared by serve, api, worker and demo.
 type serveFlags struct {
 	addr   string
 	db     dbFlags
 	log    logFlags
 	worker workerFlags
+}
+
+func (f *serveFlags) register(e env, name string) *flag.FlagSet {
+	fs := newFlags(e, name, name+" [flags]")
+	fs.StringVar(&f.addr, "addr", "127.0.0.1:8080", "listening address of the API and dashboard")
+	f.db.register(fs)
+	f.log.register(fs)
+	f.worker.register(fs, name == "worker")
+	return fs
 }
 
 func cmdServe(ctx context.Context, e env) error  { return serveParts(ctx, e, "serve", true, true) }
@@ -25,11 +39,7 @@ func cmdWorker(ctx context.Context, e env) error { return serveParts(ctx, e, "wo
 
 func serveParts(ctx context.Context, e env, name string, withHTTP, withWorker bool) error {
 	var f serveFlags
-	fs := newFlags(e, name, name+" [flags]")
-	fs.StringVar(&f.addr, "addr", "127.0.0.1:8080", "listening address of the API and dashboard")
-	f.db.register(fs)
-	f.log.register(fs)
-	f.worker.register(fs, name == "worker")
+	fs := f.register(e, name)
 	if err := parseFlags(fs, e); err != nil {
 		return err
 	}
@@ -42,14 +52,23 @@ func serveParts(ctx context.Context, e env, name string, withHTTP, withWorker bo
 		return err
 	}
 	defer st.Close()
-	wk, err := f.worker.build(e, st, log)
+	return runParts(ctx, e, st, f, log, withHTTP, withWorker, nil)
+}
+
+// runParts runs the HTTP server (API and dashboard) and/or the worker on
+// an open store until ctx ends. ready, if set, is called with the
+// listening address once the server accepts connections.
+func runParts(ctx context.Context, e env, st *store, f serveFlags, log *slog.Logger, withHTTP, withWorker bool, ready func(addr string)) error {
+	metrics := api.NewMetrics(st)
+	wk, err := f.worker.build(e, st, log, func(job string, took time.Duration) {
+		metrics.Evaluations.WithLabelValues(job).Observe(took.Seconds())
+	})
 	if err != nil {
 		return err
 	}
 	if f.worker.once {
 		return wk.RunOnce(ctx)
 	}
-
 	errc := make(chan error, 2)
 	var srv *http.Server
 	if withHTTP {
@@ -58,10 +77,17 @@ func serveParts(ctx context.Context, e env, name string, withHTTP, withWorker bo
 			return fmt.Errorf("listen on %s: %w (is another halfmark running? choose another --addr)", f.addr, err)
 		}
 		h := api.New(api.Services{Machines: st, Checks: st, Series: st, Auth: st, Audit: st, Pinger: st, Log: log,
-			Alerts: st, Status: st, Events: st, Charts: wk})
-		srv = &http.Server{Handler: h, ReadHeaderTimeout: 10 * time.Second, ReadTimeout: 60 * time.Second}
-		fmt.Fprintf(e.stdout, "Halfmark is listening on http://%s (API under /api/v1)\n", ln.Addr())
+			Alerts: st, Status: st, Events: st, Charts: wk, Raw: st, Metrics: metrics})
+		if err := web.Register(h, web.Deps{Machines: st, Checks: st, Series: st, Users: st, Sessions: st, SignOffs: st,
+			Raw: st, Status: st, Alerts: st, Events: st, Audit: st, Tolerances: liveBook{wk}, Log: log}); err != nil {
+			return err
+		}
+		srv = &http.Server{Handler: h, ReadHeaderTimeout: 10 * time.Second, ReadTimeout: 120 * time.Second}
+		fmt.Fprintf(e.stdout, "Halfmark is listening on http://%s (dashboard at /, API under /api/v1)\n", ln.Addr())
 		go func() { errc <- srv.Serve(ln) }()
+		if ready != nil {
+			ready(ln.Addr().String())
+		}
 	}
 	wdone := make(chan struct{})
 	if withWorker {
@@ -75,7 +101,7 @@ func serveParts(ctx context.Context, e env, name string, withHTTP, withWorker bo
 		go wk.ReloadOnSIGHUP(ctx) // charts use the book: reload it, and do not die of SIGHUP
 		close(wdone)
 	}
-	log.Info("started", "command", name)
+	log.Info("started", "web", withHTTP, "worker", withWorker)
 	select {
 	case <-ctx.Done():
 		log.Info("shutting down")
@@ -92,3 +118,14 @@ func serveParts(ctx context.Context, e env, name string, withHTTP, withWorker bo
 	<-wdone // the schedule stops after its running jobs finish
 	return nil
 }
+
+// liveBook is the tolerance book in force now: a SIGHUP reload is seen by
+// the dashboard at its next request.
+type liveBook struct{ w *worker.Worker }
+
+func (b liveBook) Limits(q halfmark.Quantity, kind halfmark.CheckKind, edge string, asym bool) (halfmark.Limits, bool) {
+	return b.w.Tolerances().Limits(q, kind, edge, asym)
+}
+func (b liveBook) Hash() string           { return b.w.Tolerances().Hash() }
+func (b liveBook) Source() string         { return b.w.Tolerances().Source() }
+func (b liveBook) IsShippedExample() bool { return b.w.Tolerances().IsShippedExample() }

@@ -18,21 +18,29 @@ import (
 // settings come from HALFMARK_SMTP_*, HALFMARK_WEBHOOK_* and
 // HALFMARK_NOTIFY_LEVEL1..3 (see notify.ConfigFromEnv).
 type workerFlags struct {
-	tolerances string
-	timezone   string
-	once       bool
+	tolerances    string
+	timezone      string
+	once          bool
+	evaluateEvery time.Duration
+	deliverEvery  time.Duration
 }
 
 func (w *workerFlags) register(fs *flag.FlagSet, withOnce bool) {
 	fs.StringVar(&w.tolerances, "tolerances", "", "tolerance book (TOML, see deploy/tolerances.example.toml); empty: the shipped AAPM TG-142 example. SIGHUP reloads it")
 	fs.StringVar(&w.timezone, "timezone", "Local", "site time zone of the schedule (IANA name such as Europe/Berlin, or Local)")
+	fs.DurationVar(&w.evaluateEvery, "evaluate-every", time.Minute, "how often series with new points are evaluated (each interval runs on one worker only)")
+	fs.DurationVar(&w.deliverEvery, "deliver-every", 30*time.Second, "how often queued notifications are sent")
 	if withOnce {
 		fs.BoolVar(&w.once, "once", false, "run one evaluation and one notification delivery, then exit")
 	}
 }
 
-// build makes the worker with its notification hooks.
-func (w workerFlags) build(e env, st *store, log *slog.Logger) (*worker.Worker, error) {
+// build makes the worker with its notification hooks; observe (may be nil)
+// receives job durations for the metrics.
+func (w workerFlags) build(e env, st *store, log *slog.Logger, observe func(string, time.Duration)) (*worker.Worker, error) {
+	if w.evaluateEvery < time.Second || w.deliverEvery < time.Second {
+		return nil, exitUsage{fmt.Errorf("--evaluate-every and --deliver-every must be at least 1s")}
+	}
 	loc, err := time.LoadLocation(w.timezone)
 	if err != nil {
 		return nil, exitUsage{fmt.Errorf("--timezone %q: %v; use an IANA name such as Europe/Berlin, or Local", w.timezone, err)}
@@ -44,8 +52,11 @@ func (w workerFlags) build(e env, st *store, log *slog.Logger) (*worker.Worker, 
 	ncfg.Location = loc
 	deliverer := notify.New(st.Pool, ncfg, log)
 	return worker.New(st.DB, worker.Config{
-		TolerancesPath: w.tolerances,
-		Location:       loc,
+		TolerancesPath:  w.tolerances,
+		Location:        loc,
+		IncrementalSpec: "@every " + w.evaluateEvery.String(),
+		DeliverySpec:    "@every " + w.deliverEvery.String(),
+		Observe:         observe,
 		EnqueueAlert: func(ctx context.Context, tx pgx.Tx, al halfmark.Alert) error {
 			return notify.EnqueueAlert(ctx, tx, al, ncfg)
 		},
