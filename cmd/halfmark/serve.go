@@ -12,6 +12,7 @@ import (
 
 	"halfmark"
 	"halfmark/api"
+	"halfmark/db"
 	"halfmark/web"
 	"halfmark/worker"
 )
@@ -76,10 +77,8 @@ func runParts(ctx context.Context, e env, st *store, f serveFlags, log *slog.Log
 		if err != nil {
 			return fmt.Errorf("listen on %s: %w (is another halfmark running? choose another --addr)", f.addr, err)
 		}
-		h := api.New(api.Services{Machines: st, Checks: st, Series: st, Auth: st, Audit: st, Pinger: st, Log: log,
-			Alerts: st, Status: st, Events: st, Charts: wk, Raw: st, Metrics: metrics})
-		if err := web.Register(h, web.Deps{Machines: st, Checks: st, Series: st, Users: st, Sessions: st, SignOffs: st,
-			Raw: st, Status: st, Alerts: st, Events: st, Audit: st, Tolerances: liveBook{wk}, Log: log}); err != nil {
+		h, err := newHandler(st.DB, wk, log, metrics)
+		if err != nil {
 			return err
 		}
 		srv = &http.Server{Handler: h, ReadHeaderTimeout: 10 * time.Second, ReadTimeout: 120 * time.Second}
@@ -117,6 +116,16 @@ func runParts(ctx context.Context, e env, st *store, f serveFlags, log *slog.Log
 	}
 	<-wdone // the schedule stops after its running jobs finish
 	return nil
+}
+
+// newHandler is the whole HTTP surface: the JSON API, the dashboard and
+// /metrics on one echo server.
+func newHandler(d *db.DB, wk *worker.Worker, log *slog.Logger, metrics *api.Metrics) (http.Handler, error) {
+	h := api.New(api.Services{Machines: d, Checks: d, Series: d, Auth: d, Audit: d, Pinger: d, Log: log,
+		Alerts: d, Status: d, Events: d, Charts: wk, Raw: d, Metrics: metrics})
+	err := web.Register(h, web.Deps{Machines: d, Checks: d, Series: d, Users: d, Sessions: d, SignOffs: d,
+		Raw: d, Status: d, Alerts: d, Events: d, Audit: d, Tolerances: liveBook{wk}, Log: log})
+	return h, err
 }
 
 // liveBook is the tolerance book in force now: a SIGHUP reload is seen by
