@@ -37,26 +37,7 @@ type access struct {
 // a 5xx.
 func TestAccessControlMatrix(t *testing.T) {
 	ctx := context.Background()
-	url0 := dbtest.New(t)
-	if err := db.Migrate(ctx, url0, nil); err != nil {
-		t.Fatal(err)
-	}
-	d, err := db.Open(ctx, url0)
-	if err != nil {
-		t.Fatal(err)
-	}
-	defer d.Close()
-	log := slog.New(slog.NewTextHandler(io.Discard, nil))
-	wk, err := worker.New(d, worker.Config{}, log)
-	if err != nil {
-		t.Fatal(err)
-	}
-	h, err := newHandler(d, wk, log, nil)
-	if err != nil {
-		t.Fatal(err)
-	}
-	srv := httptest.NewServer(h)
-	defer srv.Close()
+	d, h, srv := servedHandler(t)
 
 	a := halfmark.CLIActor("matrix")
 	m := halfmark.Machine{Name: "Linac Aster", SADcm: 100}
@@ -245,4 +226,32 @@ func call(t *testing.T, base, method, path string, cl access, web bool) (int, st
 	io.Copy(io.Discard, resp.Body)
 	resp.Body.Close()
 	return resp.StatusCode, resp.Header.Get("Location")
+}
+
+// servedHandler starts the handler `serve` builds (API, dashboard) on a
+// throw-away database, on a loopback port.
+func servedHandler(t *testing.T) (*db.DB, http.Handler, *httptest.Server) {
+	t.Helper()
+	ctx := context.Background()
+	url := dbtest.New(t)
+	if err := db.Migrate(ctx, url, nil); err != nil {
+		t.Fatal(err)
+	}
+	d, err := db.Open(ctx, url)
+	if err != nil {
+		t.Fatal(err)
+	}
+	t.Cleanup(d.Close)
+	log := slog.New(slog.NewTextHandler(io.Discard, nil))
+	wk, err := worker.New(d, worker.Config{}, log)
+	if err != nil {
+		t.Fatal(err)
+	}
+	h, err := newHandler(d, wk, log, nil)
+	if err != nil {
+		t.Fatal(err)
+	}
+	srv := httptest.NewServer(h)
+	t.Cleanup(srv.Close)
+	return d, h, srv
 }

@@ -4,9 +4,7 @@ import (
 	"context"
 	"fmt"
 	"io"
-	"log/slog"
 	"net/http"
-	"net/http/httptest"
 	"os"
 	"sort"
 	"strings"
@@ -18,9 +16,6 @@ import (
 	"github.com/google/uuid"
 
 	"halfmark"
-	"halfmark/db"
-	"halfmark/db/dbtest"
-	"halfmark/worker"
 )
 
 // The bounded load test: 50 clients post checks and 20 read the dashboard's
@@ -39,26 +34,7 @@ func TestLoadPostAndFrontPage(t *testing.T) {
 		dur = time.Duration(n) * time.Second
 	}
 	ctx := context.Background()
-	url := dbtest.New(t)
-	if err := db.Migrate(ctx, url, nil); err != nil {
-		t.Fatal(err)
-	}
-	d, err := db.Open(ctx, url)
-	if err != nil {
-		t.Fatal(err)
-	}
-	defer d.Close()
-	log := slog.New(slog.NewTextHandler(io.Discard, nil))
-	wk, err := worker.New(d, worker.Config{}, log)
-	if err != nil {
-		t.Fatal(err)
-	}
-	h, err := newHandler(d, wk, log, nil)
-	if err != nil {
-		t.Fatal(err)
-	}
-	srv := httptest.NewServer(h)
-	defer srv.Close()
+	d, _, srv := servedHandler(t)
 	a := halfmark.CLIActor("load")
 	var machines []halfmark.Machine
 	var beams []int64

@@ -23,6 +23,7 @@ type workerFlags struct {
 	once          bool
 	evaluateEvery time.Duration
 	deliverEvery  time.Duration
+	batch         int
 }
 
 func (w *workerFlags) register(fs *flag.FlagSet, withOnce bool) {
@@ -30,6 +31,7 @@ func (w *workerFlags) register(fs *flag.FlagSet, withOnce bool) {
 	fs.StringVar(&w.timezone, "timezone", "Local", "site time zone of the schedule (IANA name such as Europe/Berlin, or Local)")
 	fs.DurationVar(&w.evaluateEvery, "evaluate-every", time.Minute, "how often series with new points are evaluated (each interval runs on one worker only)")
 	fs.DurationVar(&w.deliverEvery, "deliver-every", 30*time.Second, "how often queued notifications are sent")
+	fs.IntVar(&w.batch, "eval-batch", 250, "series read, evaluated and stored per transaction")
 	if withOnce {
 		fs.BoolVar(&w.once, "once", false, "run one evaluation and one notification delivery, then exit")
 	}
@@ -57,6 +59,7 @@ func (w workerFlags) build(e env, st *store, log *slog.Logger, observe func(stri
 		IncrementalSpec: "@every " + w.evaluateEvery.String(),
 		DeliverySpec:    "@every " + w.deliverEvery.String(),
 		Observe:         observe,
+		BatchSize:       w.batch,
 		EnqueueAlert: func(ctx context.Context, tx pgx.Tx, al halfmark.Alert) error {
 			return notify.EnqueueAlert(ctx, tx, al, ncfg)
 		},
