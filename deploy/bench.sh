@@ -14,17 +14,17 @@ run -bench '^BenchmarkFrontPageVsStatic$' -benchtime 1x ./web
 run -bench '^Benchmark(Analyze400|SinglePass400)$' -benchtime 20000x ./analysis/profile
 run -bench '^Benchmark(AnalyzeField1024x768|SinglePass1024x768|Picket60)$' -benchtime 20x ./analysis/epid
 
-metric() { # metric BENCH UNIT -> the value reported before UNIT on BENCH's line
-  awk -v b="$1" -v u="$2" '$1 ~ "^"b"(-[0-9]+)?$" { for (i = 2; i <= NF; i++) if ($i == u) v = $(i-1) } END { print v }' "$out"
+metric() { # metric BENCH UNIT -> the value reported before UNIT on the line of BENCH (a name prefix)
+  awk -v b="$1" -v u="$2" 'index($1, b) == 1 { for (i = 2; i <= NF; i++) if ($i == u) v = $(i-1) } END { print v }' "$out"
 }
 ratio() { awk -v a="$1" -v b="$2" 'BEGIN { if (a == "" || b == "" || b == 0) print "n/a"; else printf "%.2f", a / b }'; }
 ms() { awk -v a="$1" 'BEGIN { if (a == "") print "n/a"; else printf "%.1f", a / 1e6 }'; }
 
 printf '\n%-58s %12s %10s\n' "measure (same-run baseline)" "result" "target"
-printf '%-58s %12s %10s\n' "ingest 10,000 edge results: API speed / raw pgx COPY" "$(metric BenchmarkIngest10kVsCopy api_vs_copy)" "≥ 0.5"
-printf '%-58s %12s %10s\n' "full evaluation 2,000×500: evaluate time / read time" "$(metric BenchmarkEvaluation eval/read)" "≤ 2"
-printf '%-58s %12s %10s\n' "front page (50×4×6): requests/s / static file requests/s" "$(metric BenchmarkFrontPageVsStatic front/static)" "≥ 0.3"
-printf '%-58s %12s %10s\n' "profile analysis (400 samples) / one pass over samples" "$(ratio "$(metric BenchmarkAnalyze400 ns/op)" "$(metric BenchmarkSinglePass400 ns/op)")" "≤ 20"
-printf '%-58s %12s %10s\n' "EPID field analysis 1024×768 (ms per image)" "$(ms "$(metric BenchmarkAnalyzeField1024x768 ns/op)")" "≤ 50"
-printf '%-58s %12s %10s\n' "EPID field analysis / one pass over pixels" "$(ratio "$(metric BenchmarkAnalyzeField1024x768 ns/op)" "$(metric BenchmarkSinglePass1024x768 ns/op)")" "—"
-printf '%-58s %12s %10s\n' "picket fence, 60 pairs (ms per image)" "$(ms "$(metric BenchmarkPicket60 ns/op)")" "—"
+printf '%-58s %12s %10s\n' "ingest 10,000 edge results: API speed / raw pgx COPY" "$(metric BenchmarkIngest10kVsCopy- api_vs_copy)" "≥ 0.5"
+printf '%-58s %12s %10s\n' "full evaluation 2,000×500: evaluate time / read time" "$(metric BenchmarkEvaluation/read eval/read)" "≤ 2"
+printf '%-58s %12s %10s\n' "front page (50×4×6): requests/s / static file requests/s" "$(metric BenchmarkFrontPageVsStatic- front/static)" "≥ 0.3"
+printf '%-58s %12s %10s\n' "profile analysis (400 samples) / one pass over samples" "$(ratio "$(metric BenchmarkAnalyze400- ns/op)" "$(metric BenchmarkSinglePass400- ns/op)")" "≤ 20"
+printf '%-58s %12s %10s\n' "EPID field analysis 1024×768 (ms per image)" "$(ms "$(metric BenchmarkAnalyzeField1024x768- ns/op)")" "≤ 50"
+printf '%-58s %12s %10s\n' "EPID field analysis / one pass over pixels" "$(ratio "$(metric BenchmarkAnalyzeField1024x768- ns/op)" "$(metric BenchmarkSinglePass1024x768- ns/op)")" "—"
+printf '%-58s %12s %10s\n' "picket fence, 60 pairs (ms per image)" "$(ms "$(metric BenchmarkPicket60- ns/op)")" "—"
