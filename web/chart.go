@@ -33,7 +33,7 @@ var (
 )
 
 // chartSpec is what a value chart shows. Values are in mm; the bands are
-// centre ± tolerance and centre ± action limit; control limits centre ± 3σ.
+// centre ± tolerance and centre ± action limit; control limits centre ± L·σ (drift.ShewhartL).
 type chartSpec struct {
 	Title      string
 	Times      []time.Time

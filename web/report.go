@@ -224,7 +224,7 @@ func (s *server) report(c echo.Context) error {
 	if len(charted) > 0 {
 		heading("Charts")
 		pdf.SetFont("Helvetica", "", 8)
-		pdf.MultiCell(0, 4, tr("Each chart: values (dots), signalled points (triangles), baseline (solid), control limits ±3σ (dashed), tolerance band (green) and action band (orange)."), "", "L", false)
+		pdf.MultiCell(0, 4, tr("Each chart: values (dots), signalled points (triangles), baseline (solid), control limits (dashed; ±3σ widened for the number of series of the machine, as the drift engine does), tolerance band (green) and action band (orange)."), "", "L", false)
 		now := s.d.Now()
 		for i, cm := range charted {
 			v := cm.v

@@ -7,6 +7,7 @@ import (
 	"time"
 
 	"halfmark"
+	"halfmark/analysis/drift"
 	"halfmark/analysis/spc"
 )
 
@@ -29,11 +30,13 @@ type seriesView struct {
 	Deviation          *float64 // newest value − centre, mm
 	Level              halfmark.Level
 	Rule               string
-	Signal             []bool // per point: beyond 3σ or beyond tolerance (current period only)
+	Signal             []bool // per point: beyond L·σ or beyond tolerance (current period only)
 	EWMA               *spc.EWMAResult
 	Trend              *spc.TrendResult
 	Crossing           *time.Time
-	UCL, LCL           float64 // centre ± 3σ
+	UCL, LCL           float64 // centre ± L·σ
+	L                  float64 // control-limit width in σ (3 for a lone series)
+	Family             int     // series of the machine
 	BaselineNote       string
 	ToleranceMissingBy string
 }
@@ -44,8 +47,11 @@ const trendMinPoints = 6
 
 // viewSeries computes a series' view from its points. It never fails on
 // data: what cannot be computed is left out and said in BaselineNote.
-func (s *server) viewSeries(ser halfmark.Series, pts []halfmark.Point, now time.Time) seriesView {
-	v := seriesView{S: ser, Points: pts, Signal: make([]bool, len(pts))}
+// family is the number of series of the machine: the control limits are
+// widened with it exactly as the drift engine widens them
+// (drift.ShewhartL), and a family member's EWMA does not raise Level 1.
+func (s *server) viewSeries(ser halfmark.Series, pts []halfmark.Point, now time.Time, family int) seriesView {
+	v := seriesView{S: ser, Points: pts, Signal: make([]bool, len(pts)), L: drift.ShewhartL(family), Family: family}
 	if len(pts) == 0 {
 		v.BaselineNote = "no points yet"
 		return v
@@ -92,7 +98,7 @@ func (s *server) viewSeries(ser halfmark.Series, pts []halfmark.Point, now time.
 		v.Deviation = &dev
 	}
 	if v.HasSigma {
-		v.UCL, v.LCL = v.Centre+3*v.Sigma, v.Centre-3*v.Sigma
+		v.UCL, v.LCL = v.Centre+v.L*v.Sigma, v.Centre-v.L*v.Sigma
 	}
 	for i := v.Start; i < len(pts); i++ {
 		d := math.Abs(pts[i].Value - v.Centre)
@@ -149,8 +155,8 @@ func (v seriesView) level() (halfmark.Level, string) {
 	case v.HasLimits && d > v.Limits.ToleranceMM:
 		return halfmark.LevelScheduled, "beyond tolerance"
 	case v.HasSigma && v.Signal[n]:
-		return halfmark.LevelInspect, "beyond 3σ control limit"
-	case v.EWMA != nil && len(v.EWMA.Signal) > 0 && v.EWMA.Signal[len(v.EWMA.Signal)-1]:
+		return halfmark.LevelInspect, fmt.Sprintf("beyond %.3gσ control limit", v.L)
+	case v.Family <= 1 && v.EWMA != nil && len(v.EWMA.Signal) > 0 && v.EWMA.Signal[len(v.EWMA.Signal)-1]:
 		return halfmark.LevelInspect, "EWMA signal"
 	case v.Crossing != nil && v.Latest != nil && v.Crossing.Sub(v.Latest.MeasuredAt) < 30*24*time.Hour:
 		return halfmark.LevelInspect, "trend projected to cross tolerance"
@@ -171,7 +177,7 @@ func (s *server) machineViews(ctx context.Context, machineID int64) ([]seriesVie
 		if err != nil {
 			return nil, err
 		}
-		out = append(out, s.viewSeries(ser, pts, now))
+		out = append(out, s.viewSeries(ser, pts, now, len(ss)))
 	}
 	return out, nil
 }

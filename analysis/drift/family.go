@@ -26,8 +26,9 @@ import (
 //
 // Tolerance and action limits are never widened: Level 2 and 3 stay as set.
 
-// shewhartL is the individuals-chart width for a family of m series.
-func shewhartL(m int) float64 {
+// ShewhartL is the individuals-chart width L (in σ) for a family of m
+// series: 3 for one series, Φ⁻¹(1 − 0.00135/m) for more (Bonferroni).
+func ShewhartL(m int) float64 {
 	if m <= 1 {
 		return 3
 	}

@@ -22,10 +22,10 @@ func TestSiegmundMatchesPublishedARL(t *testing.T) {
 // point is 0.00135/m, e.g. m = 100 → Φ⁻¹(1 − 1.35e−5) = 4.20 (standard
 // normal table, common practice).
 func TestFamilyWidths(t *testing.T) {
-	if shewhartL(1) != 3 || shewhartL(0) != 3 {
+	if ShewhartL(1) != 3 || ShewhartL(0) != 3 {
 		t.Fatal("a single series must keep the 3σ chart")
 	}
-	if got := shewhartL(100); math.Abs(got-4.20) > 0.01 {
+	if got := ShewhartL(100); math.Abs(got-4.20) > 0.01 {
 		t.Errorf("L for 100 series = %.3f, want 4.20", got)
 	}
 	h := familyH(0.5, 5, 100)

@@ -14,7 +14,7 @@ import (
 func statistics(v *Verdict, x []float64, t []time.Time, centre, sigma float64, restart time.Time, o Options) error {
 	ch := &v.Chart
 	n := len(x)
-	L := shewhartL(o.FamilySize)
+	L := ShewhartL(o.FamilySize)
 	ucl, lcl := centre+L*sigma, centre-L*sigma
 	ch.Sigma, ch.UCL, ch.LCL = fp(sigma), fp(ucl), fp(lcl)
 
