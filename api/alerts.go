@@ -1,6 +1,7 @@
 package api
 
 import (
+	"context"
 	"net/http"
 	"strconv"
 	"strings"
@@ -64,24 +65,17 @@ type alertComment struct {
 
 // acknowledgeAlert serves POST /api/v1/alerts/{id}/acknowledge {"comment"}.
 func (h *handlers) acknowledgeAlert(c echo.Context) error {
-	id, err := pathID(c, "id")
-	if err != nil {
-		return err
-	}
-	var req alertComment
-	if err := decodeJSON(c, &req); err != nil {
-		return err
-	}
-	al, err := h.s.Alerts.Acknowledge(c.Request().Context(), actor(c), id, req.Comment)
-	if err != nil {
-		return err
-	}
-	return c.JSON(http.StatusOK, al)
+	return h.alertAction(c, h.s.Alerts.Acknowledge)
 }
 
 // resolveAlert serves POST /api/v1/alerts/{id}/resolve {"comment"}; the
 // comment is required.
 func (h *handlers) resolveAlert(c echo.Context) error {
+	return h.alertAction(c, h.s.Alerts.Resolve)
+}
+
+// alertAction moves an alert through its lifecycle with the caller's comment.
+func (h *handlers) alertAction(c echo.Context, act func(context.Context, halfmark.Actor, int64, string) (halfmark.Alert, error)) error {
 	id, err := pathID(c, "id")
 	if err != nil {
 		return err
@@ -90,7 +84,7 @@ func (h *handlers) resolveAlert(c echo.Context) error {
 	if err := decodeJSON(c, &req); err != nil {
 		return err
 	}
-	al, err := h.s.Alerts.Resolve(c.Request().Context(), actor(c), id, req.Comment)
+	al, err := act(c.Request().Context(), actor(c), id, req.Comment)
 	if err != nil {
 		return err
 	}

@@ -54,7 +54,7 @@ func TestRawDataAppendOnly(t *testing.T) {
 	if _, err := d.Pool.Exec(ctx, `DELETE FROM raw_data`); err == nil {
 		t.Fatal("DELETE on raw_data was accepted")
 	}
-	bad := halfmark.RawData{CheckID: "0b8e3c2a-5d1f-4e8a-9a57-3f1c2d4e5f60", Kind: "video", Filename: "", Content: nil}
+	bad := halfmark.RawData{CheckID: "0b8e3c2a-5d1f-4e8a-9a57-3f1c2d4e5f60", Kind: "audio", Filename: "", Content: nil}
 	err = d.AttachRaw(ctx, a, &bad)
 	if he, ok := err.(*halfmark.Error); !ok || he.Code != halfmark.EInvalid || len(he.Fields) != 3 {
 		t.Fatalf("bad raw: got %v; want EInvalid naming kind, filename and content", err)

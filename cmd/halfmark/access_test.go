@@ -16,7 +16,6 @@ import (
 
 	"halfmark"
 	"halfmark/db"
-	"halfmark/db/dbtest"
 	"halfmark/worker"
 )
 
@@ -232,16 +231,7 @@ func call(t *testing.T, base, method, path string, cl access, web bool) (int, st
 // throw-away database, on a loopback port.
 func servedHandler(t *testing.T) (*db.DB, http.Handler, *httptest.Server) {
 	t.Helper()
-	ctx := context.Background()
-	url := dbtest.New(t)
-	if err := db.Migrate(ctx, url, nil); err != nil {
-		t.Fatal(err)
-	}
-	d, err := db.Open(ctx, url)
-	if err != nil {
-		t.Fatal(err)
-	}
-	t.Cleanup(d.Close)
+	_, d := migratedStore(t)
 	log := slog.New(slog.NewTextHandler(io.Discard, nil))
 	wk, err := worker.New(d, worker.Config{}, log)
 	if err != nil {

@@ -1,9 +1,13 @@
 package main
 
 import (
+	"net"
+
 	"bytes"
 	"context"
 	"fmt"
+	"github.com/emersion/go-smtp"
+	"halfmark/db"
 	"os"
 	"path/filepath"
 	"regexp"
@@ -160,4 +164,37 @@ func TestImport100kRowsShowsProgressAndIsIdempotent(t *testing.T) {
 	if n := count(t, url, "SELECT count(*) FROM checks"); n != 25000 {
 		t.Fatalf("re-run changed the store: %d checks", n)
 	}
+}
+
+// migratedStore gives a throw-away database with the schema applied.
+func migratedStore(t *testing.T) (string, *db.DB) {
+	t.Helper()
+	ctx := context.Background()
+	url := dbtest.New(t)
+	if err := db.Migrate(ctx, url, nil); err != nil {
+		t.Fatal(err)
+	}
+	d, err := db.Open(ctx, url)
+	if err != nil {
+		t.Fatal(err)
+	}
+	t.Cleanup(d.Close)
+	return url, d
+}
+
+// startMailbox runs an in-process SMTP server on loopback and returns its
+// port.
+func startMailbox(t *testing.T) (*mailbox, string) {
+	t.Helper()
+	box := &mailbox{}
+	l, err := net.Listen("tcp", "127.0.0.1:0")
+	if err != nil {
+		t.Fatal(err)
+	}
+	srv := smtp.NewServer(box)
+	srv.Domain = "localhost"
+	go func() { _ = srv.Serve(l) }()
+	t.Cleanup(func() { srv.Close() })
+	_, port, _ := net.SplitHostPort(l.Addr().String())
+	return box, port
 }

@@ -5,7 +5,6 @@ import (
 	"context"
 	"fmt"
 	"io"
-	"net"
 	"net/http"
 	"os"
 	"os/exec"
@@ -17,8 +16,6 @@ import (
 	"github.com/emersion/go-smtp"
 
 	"halfmark"
-	"halfmark/db"
-	"halfmark/db/dbtest"
 )
 
 // mailbox is an in-process SMTP server that keeps every message.
@@ -112,25 +109,8 @@ func TestScaleOutTwoAPIsTwoWorkers(t *testing.T) {
 		t.Skip("scale-out test skipped in -short mode")
 	}
 	ctx := context.Background()
-	url := dbtest.New(t)
-	if err := db.Migrate(ctx, url, nil); err != nil {
-		t.Fatal(err)
-	}
-	d, err := db.Open(ctx, url)
-	if err != nil {
-		t.Fatal(err)
-	}
-	defer d.Close()
-	box := &mailbox{}
-	sl, err := net.Listen("tcp", "127.0.0.1:0")
-	if err != nil {
-		t.Fatal(err)
-	}
-	ss := smtp.NewServer(box)
-	ss.Domain, ss.AllowInsecureAuth = "localhost", true
-	go func() { _ = ss.Serve(sl) }()
-	defer ss.Close()
-	_, smtpPort, _ := net.SplitHostPort(sl.Addr().String())
+	url, d := migratedStore(t)
+	box, smtpPort := startMailbox(t)
 
 	bin := buildBinary(t)
 	env := []string{"HALFMARK_DATABASE_URL=" + url, "HALFMARK_SMTP_HOST=127.0.0.1", "HALFMARK_SMTP_PORT=" + smtpPort,

@@ -2,16 +2,11 @@ package main
 
 import (
 	"context"
-	"net"
 	"syscall"
 	"testing"
 	"time"
 
-	"github.com/emersion/go-smtp"
-
 	"halfmark"
-	"halfmark/db"
-	"halfmark/db/dbtest"
 )
 
 // A worker killed with SIGKILL in the middle of an evaluation run: the next
@@ -22,15 +17,7 @@ func TestWorkerKilledMidEvaluation(t *testing.T) {
 		t.Skip("kill test skipped in -short mode")
 	}
 	ctx := context.Background()
-	url := dbtest.New(t)
-	if err := db.Migrate(ctx, url, nil); err != nil {
-		t.Fatal(err)
-	}
-	d, err := db.Open(ctx, url)
-	if err != nil {
-		t.Fatal(err)
-	}
-	defer d.Close()
+	url, d := migratedStore(t)
 	a := halfmark.CLIActor("kill-test")
 	m := halfmark.Machine{Name: "Linac Brume", SADcm: 100}
 	if err := d.CreateMachine(ctx, a, &m); err != nil {
@@ -81,16 +68,7 @@ func TestWorkerKilledMidEvaluation(t *testing.T) {
 		}
 	}
 
-	box := &mailbox{}
-	sl, err := net.Listen("tcp", "127.0.0.1:0")
-	if err != nil {
-		t.Fatal(err)
-	}
-	srv := smtp.NewServer(box)
-	srv.Domain = "localhost"
-	go func() { _ = srv.Serve(sl) }()
-	defer srv.Close()
-	_, port, _ := net.SplitHostPort(sl.Addr().String())
+	box, port := startMailbox(t)
 	env := []string{"HALFMARK_DATABASE_URL=" + url, "HALFMARK_SMTP_HOST=127.0.0.1", "HALFMARK_SMTP_PORT=" + port,
 		"HALFMARK_SMTP_TLS=none", "HALFMARK_SMTP_FROM=halfmark@brume.example", "HALFMARK_NOTIFY_LEVEL3=chief@brume.example"}
 	bin := buildBinary(t)
