@@ -3,6 +3,7 @@ package web
 import (
 	"io/fs"
 	"net/http"
+	"time"
 
 	"github.com/labstack/echo/v4"
 	"github.com/labstack/echo/v4/middleware"
@@ -46,7 +47,8 @@ func (s *server) routes(e *echo.Echo) error {
 	// Static files need no session or CSRF cookie: only the headers.
 	e.GET("/static/*", echo.WrapHandler(http.StripPrefix("/static/", http.FileServer(http.FS(static)))), s.headers)
 	g.GET("/login", s.loginPage)
-	g.POST("/login", s.login)
+	// The limit comes before every other check, so refused attempts count too.
+	g.e.Add(http.MethodPost, "/login", s.login, append([]echo.MiddlewareFunc{s.signInLimit()}, common...)...)
 	g.POST("/logout", s.logout)
 
 	ther, phys := s.need(halfmark.RoleTherapist), s.need(halfmark.RolePhysicist)
@@ -85,4 +87,24 @@ func (r *router) GET(path string, h echo.HandlerFunc, m ...echo.MiddlewareFunc) 
 }
 func (r *router) POST(path string, h echo.HandlerFunc, m ...echo.MiddlewareFunc) {
 	r.add(http.MethodPost, path, h, m)
+}
+
+// Sign-in attempts per client address: a burst of signInBurst, then one a
+// second. With the per-account lock-out (halfmark.MaxFailedSignIns) this
+// bounds password guessing across many accounts from one address.
+const signInBurst = 30
+
+func (s *server) signInLimit() echo.MiddlewareFunc {
+	store := middleware.NewRateLimiterMemoryStoreWithConfig(middleware.RateLimiterMemoryStoreConfig{
+		Rate: 1, Burst: signInBurst, ExpiresIn: 10 * time.Minute})
+	return middleware.RateLimiterWithConfig(middleware.RateLimiterConfig{
+		Store:               store,
+		IdentifierExtractor: func(c echo.Context) (string, error) { return c.RealIP(), nil },
+		DenyHandler: func(c echo.Context, _ string, _ error) error {
+			return s.fail(c, http.StatusTooManyRequests, "Too many sign-in attempts from this address. Wait a minute, then try again.")
+		},
+		ErrorHandler: func(c echo.Context, _ error) error {
+			return s.fail(c, http.StatusForbidden, "The client address could not be determined.")
+		},
+	})
 }

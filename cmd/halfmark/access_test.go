@@ -245,3 +245,28 @@ func servedHandler(t *testing.T) (*db.DB, http.Handler, *httptest.Server) {
 	t.Cleanup(srv.Close)
 	return d, h, srv
 }
+
+// Sign-in attempts from one address are limited: after the burst the
+// dashboard answers 429 with a message, whatever the account.
+func TestSignInRateLimit(t *testing.T) {
+	_, _, srv := servedHandler(t)
+	limited := 0
+	for i := 0; i < 60; i++ {
+		form := url.Values{"email": {fmt.Sprintf("nobody%d@example.org", i)}, "password": {"wrong password"}}
+		resp, err := http.PostForm(srv.URL+"/login", form)
+		if err != nil {
+			t.Fatal(err)
+		}
+		b, _ := io.ReadAll(resp.Body)
+		resp.Body.Close()
+		if resp.StatusCode == http.StatusTooManyRequests {
+			limited++
+			if !strings.Contains(string(b), "Too many sign-in attempts") {
+				t.Fatalf("429 without the message: %.200s", b)
+			}
+		}
+	}
+	if limited == 0 {
+		t.Fatal("60 sign-in attempts in a row were never limited")
+	}
+}
