@@ -1,8 +1,10 @@
 package worker
 
 import (
+	"fmt"
 	"math"
 	"strconv"
+	"strings"
 
 	"halfmark"
 	"halfmark/analysis/drift"
@@ -58,6 +60,15 @@ func attribute(ss []db.EvalSeries, vs []drift.Verdict, evs []db.Evaluation, book
 				d.Pair = pc
 			}
 		}
+		if pc.Level > halfmark.LevelInControl {
+			// The pair's signal goes on the edge that moved (the larger
+			// deviation when both did): one alert per pair, on that series.
+			n := i
+			if a.Mover == ss[j].Edge || (a.Mover != ss[i].Edge && math.Abs(a.Dev2MM) > math.Abs(a.Dev1MM)) {
+				n = j
+			}
+			raise(&evs[n], &ss[n], FamilyPair, pc.Level, pairRule(pc))
+		}
 	}
 	for k, idx := range banks {
 		leaves := make([]drift.LeafDeviation, len(idx))
@@ -78,7 +89,65 @@ func attribute(ss []db.EvalSeries, vs []drift.Verdict, evs []db.Evaluation, book
 				d.Bank = bc
 			}
 		}
+		if bc.Level > halfmark.LevelInControl {
+			// A whole-bank offset is one alert, on the bank's worst leaf.
+			for _, i := range idx {
+				if ss[i].Edge == b.WorstLeaf {
+					raise(&evs[i], &ss[i], FamilyBank, bc.Level, fmt.Sprintf("bank %d mean offset %+.2f mm over %d leaves beyond the bank-mean %s (%.2f mm); worst leaf %s %+.2f mm",
+						b.Bank, b.MeanOffsetMM, b.Leaves, limitName(bc.Level), limitValue(bc.Level, *bc.Limits), b.WorstLeaf, b.WorstDevMM))
+				}
+			}
+		}
 	}
+}
+
+// Rule families of the combined checks, beside the single-series ones.
+const (
+	FamilyPair = "pair" // a jaw pair's field size or centre beyond its limits
+	FamilyBank = "bank" // an MLC bank's mean offset beyond its limits
+)
+
+// raise adds a combined check's signal to one series' evaluation: its
+// level becomes at least lvl and an alert of the family opens on it.
+func raise(e *db.Evaluation, s *db.EvalSeries, family string, lvl halfmark.Level, rule string) {
+	if lvl > e.Level {
+		e.Level, e.Rule = lvl, rule
+	}
+	e.BackInControl = false
+	e.Signals = append(e.Signals, db.AlertSignal{Family: family, Rule: rule, Level: lvl,
+		Message: fmt.Sprintf("%s, %s (%s): %s", s.MachineName, s.BeamLabel, s.Geometry, rule)})
+}
+
+func pairRule(pc *PairCheck) string {
+	var parts []string
+	if l := pc.FieldSizeLimits; l != nil && levelOf(pc.FieldSizeChangeMM, *l) > 0 {
+		lv := levelOf(pc.FieldSizeChangeMM, *l)
+		parts = append(parts, fmt.Sprintf("field size %s changed %+.2f mm, beyond the %s (%.2f mm)", pc.Edge1+"+"+pc.Edge2,
+			pc.FieldSizeChangeMM, limitName(lv), limitValue(lv, *l)))
+	}
+	if l := pc.CentreLimits; l != nil && levelOf(pc.CentreShiftMM, *l) > 0 {
+		lv := levelOf(pc.CentreShiftMM, *l)
+		parts = append(parts, fmt.Sprintf("field centre (%s − %s)/2 shifted %+.2f mm, beyond the %s (%.2f mm)", pc.Edge2, pc.Edge1,
+			pc.CentreShiftMM, limitName(lv), limitValue(lv, *l)))
+	}
+	if pc.Summary != "" {
+		parts = append(parts, pc.Summary)
+	}
+	return strings.Join(parts, "; ")
+}
+
+func limitName(l halfmark.Level) string {
+	if l >= halfmark.LevelImmediate {
+		return "action limit"
+	}
+	return "tolerance"
+}
+
+func limitValue(l halfmark.Level, lim halfmark.Limits) float64 {
+	if l >= halfmark.LevelImmediate {
+		return lim.ActionMM
+	}
+	return lim.ToleranceMM
 }
 
 // PairCheck is a jaw pair's attribution judged against the book's

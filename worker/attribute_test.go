@@ -49,3 +49,93 @@ func TestEvaluateBatchBankAttribution(t *testing.T) {
 		}
 	}
 }
+
+// The bank check opens one alert of its own, on the worst leaf: with the
+// bank above, leaves B1P1–B1P3 (0.6 mm, inside the 1 mm leaf tolerance)
+// carry no Level 2, and B1P4 (1.2 mm, beyond it) carries both its own
+// limit signal and the bank signal (mean 0.75 mm > 0.5 mm).
+func TestBankCheckRaisesOneAlert(t *testing.T) {
+	zero, sigma := 0.0, 0.3
+	now := day0.AddDate(0, 0, 30)
+	var ss []db.EvalSeries
+	for leaf, last := range []float64{0.6, 0.6, 0.6, 0.9} {
+		s := db.EvalSeries{Series: halfmark.Series{ID: int64(leaf + 1), MachineID: 1, BeamID: 1, Geometry: "picket fence",
+			Edge: "B1P" + itoa(int64(leaf+1)), Quantity: halfmark.QPosition},
+			BaselineValueMM: &zero, BaselineSigmaMM: &sigma}
+		for k := 0; k < 12; k++ {
+			v := 0.0
+			if k == 11 {
+				v = last
+			}
+			s.Times = append(s.Times, day0.AddDate(0, 0, k))
+			s.ValuesMM = append(s.ValuesMM, v)
+			s.Kinds = append(s.Kinds, halfmark.KindMonthly)
+		}
+		ss = append(ss, s)
+	}
+	// Bank mean (0.6·3 + 0.9)/4 = 0.675 mm (derived): beyond 0.5, inside 1.0.
+	evs := EvaluateBatch(ss, ShippedTolerances(), drift.Options{}, now)
+	bankSignals := 0
+	for i, e := range evs {
+		for _, sg := range e.Signals {
+			if sg.Family == FamilyBank {
+				bankSignals++
+				if ss[i].Edge != "B1P4" || sg.Level != halfmark.LevelScheduled {
+					t.Errorf("bank signal on %s at %v", ss[i].Edge, sg.Level)
+				}
+			}
+		}
+		if ss[i].Edge == "B1P4" && e.Level != halfmark.LevelScheduled {
+			t.Errorf("worst leaf level %v, want Level 2 from the bank check", e.Level)
+		}
+		if ss[i].Edge != "B1P4" && e.Level >= halfmark.LevelScheduled {
+			t.Errorf("%s raised to %v by the bank check", ss[i].Edge, e.Level)
+		}
+	}
+	if bankSignals != 1 {
+		t.Fatalf("%d bank signals, want 1", bankSignals)
+	}
+}
+
+// A field that grows on both sides: X1 and X2 each 1.2 mm outward, inside
+// the 2 mm edge tolerance of the morning check, but the field size
+// X1 + X2 changes 2.4 mm, beyond the 2 mm field-size tolerance (AAPM TG-142
+// daily collimator size indicator, seen in physics.md): one Level 2 pair
+// alert, on one edge of the pair.
+func TestPairCheckRaisesOneAlert(t *testing.T) {
+	base, sigma := 50.0, 0.5
+	now := day0.AddDate(0, 0, 30)
+	var ss []db.EvalSeries
+	for n, edge := range []string{"X1", "X2"} {
+		s := db.EvalSeries{Series: halfmark.Series{ID: int64(n + 1), MachineID: 1, BeamID: 1, Geometry: "10×10 cm, iso",
+			Edge: edge, Quantity: halfmark.QPosition}, BaselineValueMM: &base, BaselineSigmaMM: &sigma}
+		for k := 0; k < 12; k++ {
+			v := 50.0
+			if k == 11 {
+				v = 51.2
+			}
+			s.Times = append(s.Times, day0.AddDate(0, 0, k))
+			s.ValuesMM = append(s.ValuesMM, v)
+			s.Kinds = append(s.Kinds, halfmark.KindMorning)
+		}
+		ss = append(ss, s)
+	}
+	evs := EvaluateBatch(ss, ShippedTolerances(), drift.Options{}, now)
+	pairSignals, raised := 0, 0
+	for _, e := range evs {
+		for _, sg := range e.Signals {
+			if sg.Family == FamilyPair {
+				pairSignals++
+				if sg.Level != halfmark.LevelScheduled {
+					t.Errorf("pair signal level %v, want Level 2", sg.Level)
+				}
+			}
+		}
+		if e.Level == halfmark.LevelScheduled {
+			raised++
+		}
+	}
+	if pairSignals != 1 || raised != 1 {
+		t.Fatalf("%d pair signals, %d series at Level 2; want one each", pairSignals, raised)
+	}
+}

@@ -116,8 +116,8 @@ func storeRaw(ctx context.Context, st *store, a halfmark.Actor, it demo.Item) er
 }
 
 // commissioningBaselines sets, for every position and penumbra series of a
-// machine that has a commissioning point, that point as the baseline in
-// force from the commissioning day, with the σ of the commissioning
+// machine with commissioning points, their mean as the baseline in force
+// from the commissioning day, with the σ of the commissioning
 // repeatability study.
 func commissioningBaselines(ctx context.Context, st *store, a halfmark.Actor, machineID int64, from time.Time) error {
 	ss, err := st.MachineSeries(ctx, machineID)
@@ -132,18 +132,22 @@ func commissioningBaselines(ctx context.Context, st *store, a halfmark.Actor, ma
 		if err != nil {
 			return err
 		}
+		sum, n := 0.0, 0
+		var at time.Time
 		for _, p := range pts {
-			if p.Kind != halfmark.KindCommissioning {
-				continue
+			if p.Kind == halfmark.KindCommissioning {
+				sum, n, at = sum+p.Value, n+1, p.MeasuredAt
 			}
-			v := p.Value
-			sd := demo.ReproducibilityMM(s.Quantity, s.Edge, s.Geometry)
-			b := halfmark.Baseline{SeriesID: s.ID, ValueMM: &v, SigmaMM: &sd, ValidFrom: from,
-				Reason: "commissioning measurement " + p.MeasuredAt.Format(time.DateOnly) + "; σ from the commissioning repeatability study"}
-			if err := st.SetBaseline(ctx, a, &b); err != nil {
-				return err
-			}
-			break
+		}
+		if n == 0 {
+			continue
+		}
+		v := sum / float64(n)
+		sd := demo.ReproducibilityMM(s.Quantity, s.Edge, s.Geometry)
+		b := halfmark.Baseline{SeriesID: s.ID, ValueMM: &v, SigmaMM: &sd, ValidFrom: from,
+			Reason: fmt.Sprintf("commissioning %s: mean of %d measurement(s); σ from the commissioning repeatability study", at.Format(time.DateOnly), n)}
+		if err := st.SetBaseline(ctx, a, &b); err != nil {
+			return err
 		}
 	}
 	return nil
