@@ -108,11 +108,14 @@ const (
 )
 
 // raise adds a combined check's signal to one series' evaluation: its
-// level becomes at least lvl and an alert of the family opens on it.
+// level becomes lvl and an alert of the family opens on it. When the
+// series is already at that level by its own limits, its own alert says
+// it and no second alert is opened for the same event.
 func raise(e *db.Evaluation, s *db.EvalSeries, family string, lvl halfmark.Level, rule string) {
-	if lvl > e.Level {
-		e.Level, e.Rule = lvl, rule
+	if lvl <= e.Level {
+		return
 	}
+	e.Level, e.Rule = lvl, rule
 	e.BackInControl = false
 	e.Signals = append(e.Signals, db.AlertSignal{Family: family, Rule: rule, Level: lvl,
 		Message: fmt.Sprintf("%s, %s (%s): %s", s.MachineName, s.BeamLabel, s.Geometry, rule)})
