@@ -13,24 +13,8 @@ import (
 // example's bank-mean tolerance 0.5 mm (local choice) and inside its
 // action limit 1.0 mm: Level 2, worst leaf B1P4 (residual +0.45 mm).
 func TestEvaluateBatchBankAttribution(t *testing.T) {
-	zero, sigma := 0.0, 0.1
 	now := day0.AddDate(0, 0, 30)
-	var ss []db.EvalSeries
-	for leaf, last := range []float64{0.6, 0.6, 0.6, 1.2} {
-		s := db.EvalSeries{Series: halfmark.Series{ID: int64(leaf + 1), MachineID: 1, BeamID: 1, Geometry: "picket fence",
-			Edge: "B1P" + itoa(int64(leaf+1)), Quantity: halfmark.QPosition},
-			BaselineValueMM: &zero, BaselineSigmaMM: &sigma}
-		for k := 0; k < 12; k++ {
-			v := 0.0
-			if k == 11 {
-				v = last
-			}
-			s.Times = append(s.Times, day0.AddDate(0, 0, k))
-			s.ValuesMM = append(s.ValuesMM, v)
-			s.Kinds = append(s.Kinds, halfmark.KindMonthly)
-		}
-		ss = append(ss, s)
-	}
+	ss := leafSeries([]float64{0.6, 0.6, 0.6, 1.2}, 0.1)
 	evs := EvaluateBatch(ss, ShippedTolerances(), drift.Options{}, now)
 	for i, e := range evs {
 		d := e.Details.(*Details)
@@ -55,24 +39,8 @@ func TestEvaluateBatchBankAttribution(t *testing.T) {
 // carry no Level 2, and B1P4 (1.2 mm, beyond it) carries both its own
 // limit signal and the bank signal (mean 0.75 mm > 0.5 mm).
 func TestBankCheckRaisesOneAlert(t *testing.T) {
-	zero, sigma := 0.0, 0.3
 	now := day0.AddDate(0, 0, 30)
-	var ss []db.EvalSeries
-	for leaf, last := range []float64{0.6, 0.6, 0.6, 0.9} {
-		s := db.EvalSeries{Series: halfmark.Series{ID: int64(leaf + 1), MachineID: 1, BeamID: 1, Geometry: "picket fence",
-			Edge: "B1P" + itoa(int64(leaf+1)), Quantity: halfmark.QPosition},
-			BaselineValueMM: &zero, BaselineSigmaMM: &sigma}
-		for k := 0; k < 12; k++ {
-			v := 0.0
-			if k == 11 {
-				v = last
-			}
-			s.Times = append(s.Times, day0.AddDate(0, 0, k))
-			s.ValuesMM = append(s.ValuesMM, v)
-			s.Kinds = append(s.Kinds, halfmark.KindMonthly)
-		}
-		ss = append(ss, s)
-	}
+	ss := leafSeries([]float64{0.6, 0.6, 0.6, 0.9}, 0.3)
 	// Bank mean (0.6·3 + 0.9)/4 = 0.675 mm (derived): beyond 0.5, inside 1.0.
 	evs := EvaluateBatch(ss, ShippedTolerances(), drift.Options{}, now)
 	bankSignals := 0
@@ -138,4 +106,27 @@ func TestPairCheckRaisesOneAlert(t *testing.T) {
 	if pairSignals != 1 || raised != 1 {
 		t.Fatalf("%d pair signals, %d series at Level 2; want one each", pairSignals, raised)
 	}
+}
+
+// leafSeries builds bank 1 leaf series B1P1… with baseline 0 and the given
+// σ: eleven points at 0, then each leaf's last value.
+func leafSeries(lasts []float64, sigma float64) []db.EvalSeries {
+	zero := 0.0
+	var ss []db.EvalSeries
+	for leaf, last := range lasts {
+		s := db.EvalSeries{Series: halfmark.Series{ID: int64(leaf + 1), MachineID: 1, BeamID: 1, Geometry: "picket fence",
+			Edge: "B1P" + itoa(int64(leaf+1)), Quantity: halfmark.QPosition},
+			BaselineValueMM: &zero, BaselineSigmaMM: &sigma}
+		for k := 0; k < 12; k++ {
+			v := 0.0
+			if k == 11 {
+				v = last
+			}
+			s.Times = append(s.Times, day0.AddDate(0, 0, k))
+			s.ValuesMM = append(s.ValuesMM, v)
+			s.Kinds = append(s.Kinds, halfmark.KindMonthly)
+		}
+		ss = append(ss, s)
+	}
+	return ss
 }
