@@ -156,17 +156,7 @@ func (s *server) setBaseline(c echo.Context) error {
 	if b.Reason == "" {
 		msgs = append(msgs, "Reason: say why the baseline is set, e.g. \"commissioning value\".")
 	}
-	if len(msgs) > 0 {
-		return s.seriesPage(c, http.StatusUnprocessableEntity, "baseline", strings.Join(msgs, " "))
-	}
-	b.SetBy = user(c).Email
-	if err := s.d.Series.SetBaseline(c.Request().Context(), user(c).Actor(), &b); err != nil {
-		if halfmark.ErrorCodeOf(err) == halfmark.EInvalid {
-			return s.seriesPage(c, http.StatusUnprocessableEntity, "baseline", err.Error())
-		}
-		return s.failErr(c, err)
-	}
-	return c.Redirect(http.StatusSeeOther, "/series/"+c.Param("id"))
+	return s.storeBaseline(c, "baseline", &b, msgs)
 }
 
 // newPeriod starts a new baseline period after a service: the baseline is
@@ -186,13 +176,20 @@ func (s *server) newPeriod(c echo.Context) error {
 	if b.Reason == "" {
 		msgs = append(msgs, "Reason: describe the service, e.g. \"X2 jaw motor replaced\".")
 	}
+	return s.storeBaseline(c, "period", &b, msgs)
+}
+
+// storeBaseline stores a baseline version from one of the series page's
+// forms: with the form's messages beside it when anything is wrong,
+// nothing stored; else back to the series page.
+func (s *server) storeBaseline(c echo.Context, form string, b *halfmark.Baseline, msgs []string) error {
 	if len(msgs) > 0 {
-		return s.seriesPage(c, http.StatusUnprocessableEntity, "period", strings.Join(msgs, " "))
+		return s.seriesPage(c, http.StatusUnprocessableEntity, form, strings.Join(msgs, " "))
 	}
 	b.SetBy = user(c).Email
-	if err := s.d.Series.SetBaseline(c.Request().Context(), user(c).Actor(), &b); err != nil {
+	if err := s.d.Series.SetBaseline(c.Request().Context(), user(c).Actor(), b); err != nil {
 		if halfmark.ErrorCodeOf(err) == halfmark.EInvalid {
-			return s.seriesPage(c, http.StatusUnprocessableEntity, "period", err.Error())
+			return s.seriesPage(c, http.StatusUnprocessableEntity, form, err.Error())
 		}
 		return s.failErr(c, err)
 	}
