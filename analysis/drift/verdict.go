@@ -56,37 +56,12 @@ const (
 	FlagNelson               // a selected Nelson rule completes here
 )
 
-// ChartPoint is one point of the dashboard chart. Statistics are absent
-// while the baseline is pending (no sigma yet).
-type ChartPoint struct {
-	Index       int       `json:"index"` // 1-based within the baseline period
-	Time        time.Time `json:"time"`
-	ValueMM     float64   `json:"value_mm"`
-	DeviationMM float64   `json:"deviation_mm"`
-	EWMA        *float64  `json:"ewma,omitempty"`
-	EWMAUCL     *float64  `json:"ewma_ucl,omitempty"`
-	EWMALCL     *float64  `json:"ewma_lcl,omitempty"`
-	CPlus       *float64  `json:"cusum_plus,omitempty"`
-	CMinus      *float64  `json:"cusum_minus,omitempty"`
-	Flags       uint8     `json:"-"`
-	Signals     []string  `json:"signals,omitempty"` // families flagged on this point
-}
-
-// Chart is what the dashboard draws. Limits are absolute values in mm.
-type Chart struct {
-	Centre         float64      `json:"centre_mm"`
-	Sigma          *float64     `json:"sigma_mm"`
-	UCL            *float64     `json:"ucl_mm"` // individuals, centre ± 3σ
-	LCL            *float64     `json:"lcl_mm"`
-	ToleranceUpper *float64     `json:"tolerance_upper_mm"`
-	ToleranceLower *float64     `json:"tolerance_lower_mm"`
-	ActionUpper    *float64     `json:"action_upper_mm"`
-	ActionLower    *float64     `json:"action_lower_mm"`
-	CUSUMInterval  *float64     `json:"cusum_h_mm"` // H·σ
-	EWMALambda     float64      `json:"ewma_lambda,omitempty"`
-	EWMAL          float64      `json:"ewma_l,omitempty"`
-	Points         []ChartPoint `json:"points"`
-}
+// ChartPoint and Chart are the root package's chart types: one name for
+// the chart every screen draws.
+type (
+	ChartPoint = halfmark.ChartPoint
+	Chart      = halfmark.SeriesChart
+)
 
 // Verdict is the evaluation of one series at Options.Now.
 type Verdict struct {
