@@ -17,6 +17,7 @@ import (
 	"time"
 
 	"halfmark"
+	"halfmark/analysis/tolerance"
 	"halfmark/api"
 	"halfmark/db"
 	"halfmark/db/dbtest"
@@ -164,7 +165,7 @@ func newHarness(t testing.TB, o harnessOpts) *harness {
 		deps.Status = h.status
 	}
 	if o.engine {
-		deps.Status, deps.Alerts, deps.Events, deps.Tolerances = d, d, d, worker.ShippedTolerances()
+		deps.Status, deps.Alerts, deps.Events, deps.Tolerances = d, d, d, tolerance.Shipped()
 	}
 	if err := web.Register(e, deps); err != nil {
 		t.Fatal(err)

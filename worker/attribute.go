@@ -80,7 +80,7 @@ func attribute(ss []db.EvalSeries, vs []drift.Verdict, evs []db.Evaluation, book
 			continue
 		}
 		bc := &BankCheck{BankAttribution: b}
-		if l, ok := book.Limits(QMLCBankMean, kindOf(&ss[idx[0]]), "B"+strconv.Itoa(k.bank), false); ok {
+		if l, ok := book.Limits(halfmark.QMLCBankMean, kindOf(&ss[idx[0]]), "B"+strconv.Itoa(k.bank), false); ok {
 			bc.Limits = &l
 			bc.Level = levelOf(b.MeanOffsetMM, l)
 		}
@@ -169,7 +169,7 @@ func checkPair(a drift.PairAttribution, pair string, kind halfmark.CheckKind, as
 		q   halfmark.Quantity
 		v   float64
 		dst **halfmark.Limits
-	}{{QFieldSize, a.FieldSizeChangeMM, &pc.FieldSizeLimits}, {QCentreOffset, a.CentreShiftMM, &pc.CentreLimits}} {
+	}{{halfmark.QFieldSize, a.FieldSizeChangeMM, &pc.FieldSizeLimits}, {halfmark.QCentreOffset, a.CentreShiftMM, &pc.CentreLimits}} {
 		l, ok := book.Limits(q.q, kind, pair, asym)
 		if !ok {
 			continue

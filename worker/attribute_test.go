@@ -5,6 +5,7 @@ import (
 
 	"halfmark"
 	"halfmark/analysis/drift"
+	"halfmark/analysis/tolerance"
 	"halfmark/db"
 )
 
@@ -15,7 +16,7 @@ import (
 func TestEvaluateBatchBankAttribution(t *testing.T) {
 	now := day0.AddDate(0, 0, 30)
 	ss := leafSeries([]float64{0.6, 0.6, 0.6, 1.2}, 0.1)
-	evs := EvaluateBatch(ss, ShippedTolerances(), drift.Options{}, now)
+	evs := EvaluateBatch(ss, tolerance.Shipped(), drift.Options{}, now)
 	for i, e := range evs {
 		d := e.Details.(*Details)
 		if d.Bank == nil || d.Bank.Level != halfmark.LevelScheduled || d.Bank.WorstLeaf != "B1P4" {
@@ -42,7 +43,7 @@ func TestBankCheckRaisesOneAlert(t *testing.T) {
 	now := day0.AddDate(0, 0, 30)
 	ss := leafSeries([]float64{0.6, 0.6, 0.6, 0.9}, 0.3)
 	// Bank mean (0.6·3 + 0.9)/4 = 0.675 mm (derived): beyond 0.5, inside 1.0.
-	evs := EvaluateBatch(ss, ShippedTolerances(), drift.Options{}, now)
+	evs := EvaluateBatch(ss, tolerance.Shipped(), drift.Options{}, now)
 	bankSignals := 0
 	for i, e := range evs {
 		for _, sg := range e.Signals {
@@ -88,7 +89,7 @@ func TestPairCheckRaisesOneAlert(t *testing.T) {
 		}
 		ss = append(ss, s)
 	}
-	evs := EvaluateBatch(ss, ShippedTolerances(), drift.Options{}, now)
+	evs := EvaluateBatch(ss, tolerance.Shipped(), drift.Options{}, now)
 	pairSignals, raised := 0, 0
 	for _, e := range evs {
 		for _, sg := range e.Signals {
@@ -129,4 +130,27 @@ func leafSeries(lasts []float64, sigma float64) []db.EvalSeries {
 		ss = append(ss, s)
 	}
 	return ss
+}
+
+// Jaw-pair checks against the shipped book: daily field size 2 mm (TG-142
+// collimator size indicator, seen), monthly asymmetric 1 mm (secondary),
+// centre offset 1 mm / 1.5 mm (local choice in the example).
+func TestCheckPairShipped(t *testing.T) {
+	b := tolerance.Shipped()
+	for _, c := range []struct {
+		d1, d2 float64
+		kind   halfmark.CheckKind
+		asym   bool
+		want   halfmark.Level
+	}{
+		{1.0, 1.0, halfmark.KindMorning, false, halfmark.LevelInControl},  // ΔF = 2.0: on the limit is inside
+		{1.3, 1.2, halfmark.KindMorning, false, halfmark.LevelScheduled},  // ΔF = 2.5 > 2
+		{0.6, 0.6, halfmark.KindMonthly, true, halfmark.LevelScheduled},   // ΔF = 1.2 > 1 (asymmetric)
+		{-1.6, 1.6, halfmark.KindMonthly, false, halfmark.LevelImmediate}, // Δc = 1.6 > 1.5
+	} {
+		pc := checkPair(drift.Attribute("X1", c.d1, "X2", c.d2, 0.1), "X1+X2", c.kind, c.asym, b)
+		if pc.Level != c.want || pc.FieldSizeLimits == nil || pc.CentreLimits == nil {
+			t.Errorf("d = (%v, %v) %s asym %v: level %d, want %d (%+v)", c.d1, c.d2, c.kind, c.asym, pc.Level, c.want, pc)
+		}
+	}
 }

@@ -15,6 +15,7 @@ import (
 
 	"halfmark"
 	"halfmark/analysis/drift"
+	"halfmark/analysis/tolerance"
 	"halfmark/db"
 )
 
@@ -96,7 +97,7 @@ type Worker struct {
 	db   *db.DB
 	cfg  Config
 	log  *slog.Logger
-	book atomic.Pointer[Tolerances]
+	book atomic.Pointer[tolerance.Book]
 }
 
 // New loads the tolerance book and returns a worker; it does not start the
@@ -106,7 +107,7 @@ func New(d *db.DB, cfg Config, log *slog.Logger) (*Worker, error) {
 		log = slog.Default()
 	}
 	w := &Worker{db: d, cfg: cfg.withDefaults(), log: log}
-	b, err := LoadTolerances(cfg.TolerancesPath)
+	b, err := tolerance.Load(cfg.TolerancesPath)
 	if err != nil {
 		return nil, err
 	}
@@ -125,7 +126,7 @@ func (w *Worker) Tolerances() halfmark.ToleranceBook { return w.book.Load() }
 // Reload re-reads the tolerance file. A bad file is refused (the error
 // names the line) and the book in force stays.
 func (w *Worker) Reload() error {
-	b, err := LoadTolerances(w.cfg.TolerancesPath)
+	b, err := tolerance.Load(w.cfg.TolerancesPath)
 	if err != nil {
 		w.log.Error("tolerance file refused; the previous book stays in force", "err", err, "hash", w.book.Load().Hash())
 		return err

@@ -27,7 +27,7 @@ type workerFlags struct {
 }
 
 func (w *workerFlags) register(fs *flag.FlagSet, withOnce bool) {
-	fs.StringVar(&w.tolerances, "tolerances", "", "tolerance book (TOML, see deploy/tolerances.example.toml); empty: the shipped AAPM TG-142 example. SIGHUP reloads it")
+	fs.StringVar(&w.tolerances, "tolerances", "", "tolerance book (TOML, see analysis/tolerance/example.toml); empty: the shipped AAPM TG-142 example. SIGHUP reloads it")
 	fs.StringVar(&w.timezone, "timezone", "Local", "site time zone of the schedule (IANA name such as Europe/Berlin, or Local)")
 	fs.DurationVar(&w.evaluateEvery, "evaluate-every", time.Minute, "how often series with new points are evaluated (each interval runs on one worker only)")
 	fs.DurationVar(&w.deliverEvery, "deliver-every", 30*time.Second, "how often queued notifications are sent")
