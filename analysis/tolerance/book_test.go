@@ -100,7 +100,6 @@ func TestTolerancesErrorsNameTheLine(t *testing.T) {
 	}
 }
 
-
 // The [detection] table overrides the engine's defaults key by key; unknown
 // keys are refused by name. [entry] sets the Level 2/3 instruction.
 func TestDetectionAndEntryTables(t *testing.T) {
