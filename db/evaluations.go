@@ -29,6 +29,7 @@ type EvalSeries struct {
 	Times         []time.Time
 	ValuesMM      []float64
 	Kinds         []halfmark.CheckKind
+	CheckIDs      []string
 	LastCreatedAt time.Time // newest checks.created_at among the points
 	// FamilySize is the number of series of the machine: the family whose
 	// false alarms the statistical charts keep near one series' rate.
@@ -103,13 +104,14 @@ func (d *DB) LoadEvalSeries(ctx context.Context, ids []int64, at time.Time) ([]E
 	var sid int64
 	var mt, ct time.Time
 	var v float64
-	var kind string
+	var kind, checkID string
 	for prows.Next() {
-		if err := prows.Scan(&sid, &mt, &ct, &v, &kind); err != nil {
+		if err := prows.Scan(&sid, &mt, &ct, &checkID, &v, &kind); err != nil {
 			return nil, mapErr(err)
 		}
 		e := &out[index[sid]]
 		e.Times, e.ValuesMM, e.Kinds = append(e.Times, mt), append(e.ValuesMM, v), append(e.Kinds, halfmark.CheckKind(kind))
+		e.CheckIDs = append(e.CheckIDs, checkID)
 		if ct.After(e.LastCreatedAt) {
 			e.LastCreatedAt = ct
 		}
@@ -123,7 +125,7 @@ func (d *DB) LoadEvalSeries(ctx context.Context, ids []int64, at time.Time) ([]E
 // about four times faster for jaw series read together.
 const pointsSQL = `WITH sel AS (SELECT id, machine_id, beam_id, geometry, edge, quantity, method FROM series WHERE id = ANY($1)),
 	grp AS (SELECT DISTINCT machine_id, beam_id, geometry, method FROM sel)
-	SELECT s.id, c.measured_at, c.created_at,
+	SELECT s.id, c.measured_at, c.created_at, c.id::text,
 	       CASE s.quantity WHEN 'position' THEN er.iso_position_mm
 	                       WHEN 'penumbra' THEN er.penumbra_mm
 	                       ELSE er.iso_light_position_mm - er.iso_position_mm END,

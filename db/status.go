@@ -8,19 +8,8 @@ import (
 	"halfmark"
 )
 
-// StatusOptions say when a check is overdue.
-type StatusOptions struct {
-	// MorningInterval + MorningGrace is the longest a beam may go without a
-	// morning check (default 24 h + 6 h). With SkipWeekends, time on
-	// Saturdays and Sundays (in Location) does not count: a Friday check
-	// covers the weekend (TG-142 daily checks are per treatment day).
-	MorningInterval, MorningGrace time.Duration
-	SkipWeekends                  bool
-	// MonthlyInterval is the longest a beam may go without a monthly check
-	// (default 31 days).
-	MonthlyInterval time.Duration
-	Location        *time.Location
-}
+// StatusOptions say when a check is overdue (the domain type).
+type StatusOptions = halfmark.StatusOptions
 
 // DefaultStatusOptions are the defaults of StatusOptions.
 var DefaultStatusOptions = StatusOptions{MorningInterval: 24 * time.Hour, MorningGrace: 6 * time.Hour, SkipWeekends: true,
