@@ -37,7 +37,7 @@ func newDriftEnv(t *testing.T) (*env, *worker.Worker) {
 	}
 	e.srv.Close()
 	e.srv = httptest.NewServer(api.New(api.Services{Machines: e.db, Checks: e.db, Series: e.db, Auth: e.db, Audit: e.db, Pinger: e.db,
-		Alerts: e.db, Status: e.db, Events: e.db, Charts: w, Now: func() time.Time { return now }}))
+		Alerts: e.db, Status: e.db, Events: e.db, Findings: e.db, Evaluations: e.db, Now: func() time.Time { return now }}))
 	t.Cleanup(e.srv.Close)
 	for k := 0; k < 26; k++ {
 		at := now.AddDate(0, 0, k-26)

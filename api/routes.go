@@ -51,6 +51,10 @@ func (h *handlers) routes(e *echo.Echo) {
 	v1.POST("/alerts/:id/acknowledge", h.acknowledgeAlert, physicist)
 	v1.POST("/alerts/:id/resolve", h.resolveAlert, physicist)
 	v1.GET("/series/:id/chart", h.seriesChart, therapist)
+	v1.GET("/findings", h.listFindings, therapist)
+	v1.GET("/findings/:id", h.getFinding, therapist)
+	v1.POST("/findings/:id/acknowledge", h.acknowledgeFinding, physicist)
+	v1.POST("/findings/:id/resolve", h.resolveFinding, physicist)
 	v1.GET("/machines/:id/service-events", h.listServiceEvents, therapist)
 	v1.POST("/machines/:id/service-events", h.createServiceEvent, physicist)
 }
