@@ -20,11 +20,11 @@ type MachineResult struct {
 // PooledPoint is one session of a component's pooled chart. The
 // statistics are causal: each uses only this and earlier sessions.
 type PooledPoint struct {
-	Time    time.Time      `json:"time"`    // the session's first measurement
-	Views   int            `json:"views"`   // views with a σ pooled here
-	MM      float64        `json:"mm"`      // pooled deviation (bank mean, leaf residual), mm
-	SEMM    float64        `json:"se_mm"`   // its standard error, mm
-	Z       float64        `json:"z"`       // MM/SEMM
+	Time    time.Time      `json:"time"`  // the session's first measurement
+	Views   int            `json:"views"` // views with a σ pooled here
+	MM      float64        `json:"mm"`    // pooled deviation (bank mean, leaf residual), mm
+	SEMM    float64        `json:"se_mm"` // its standard error, mm
+	Z       float64        `json:"z"`     // MM/SEMM
 	CPlus   float64        `json:"cusum_plus"`
 	CMinus  float64        `json:"cusum_minus"` // one-sided sums in σ of Z
 	EWMA    float64        `json:"ewma"`        // EWMA of Z
@@ -168,7 +168,10 @@ func buildComponents(ps []*prepared, book halfmark.ToleranceBook, d Detection) [
 		bank string
 		day  time.Time
 	}
-	type agg struct{ sumAll, sumSig, s2 float64; nAll, nSig int }
+	type agg struct {
+		sumAll, sumSig, s2 float64
+		nAll, nSig         int
+	}
 	bankAgg := map[bankDay]*agg{}
 	for i, p := range ps {
 		s := p.in

@@ -20,7 +20,9 @@ func (testBook) Limits(q halfmark.Quantity, kind halfmark.CheckKind, edge string
 	if e, err := halfmark.ParseEdge(edge); err == nil && e.Jaw == "" {
 		mlc = true
 	}
-	l := func(t, a float64) (halfmark.Limits, bool) { return halfmark.Limits{ToleranceMM: t, ActionMM: a, Source: "test"}, true }
+	l := func(t, a float64) (halfmark.Limits, bool) {
+		return halfmark.Limits{ToleranceMM: t, ActionMM: a, Source: "test"}, true
+	}
 	switch q {
 	case halfmark.QPosition:
 		if mlc {
@@ -68,12 +70,12 @@ type model struct {
 	days   int // calendar days simulated
 	// σ per view, mm.
 	jawSD, scanSD, penSD, leafSD, lightSD float64
-	round     float64 // typed readings rounded to this many mm (0: none)
-	scans     bool    // monthly tank scans of every jaw edge per beam
-	leaves    int     // leaf pairs per bank (0: no picket fence)
-	lights    bool    // monthly light-offset series per jaw
-	penumbrae bool
-	stored    bool // baselines stored (value and σ) or estimated from N points
+	round                                 float64 // typed readings rounded to this many mm (0: none)
+	scans                                 bool    // monthly tank scans of every jaw edge per beam
+	leaves                                int     // leaf pairs per bank (0: no picket fence)
+	lights                                bool    // monthly light-offset series per jaw
+	penumbrae                             bool
+	stored                                bool // baselines stored (value and σ) or estimated from N points
 	// change adds the scenario's change (mm) to a series' truth at t.
 	change func(s *SeriesInput, t time.Time) float64
 }

@@ -14,17 +14,17 @@ import (
 // SeriesInput is one series as loaded from the store: its identity, the
 // baseline in force and its current points in measurement order.
 type SeriesInput struct {
-	ID, MachineID, BeamID                   int64
-	MachineName, BeamLabel, Geometry, Edge  string
-	Quantity                                halfmark.Quantity
-	Method                                  halfmark.Method
-	BaselineValueMM, BaselineSigmaMM        *float64   // baseline in force; nil = estimate from the period's first points
-	BaselineFrom                            *time.Time // start of the baseline period
-	CUSUMRestart                            *time.Time
-	Times                                   []time.Time
-	ValuesMM                                []float64
-	Kinds                                   []halfmark.CheckKind
-	CheckIDs                                []string
+	ID, MachineID, BeamID                  int64
+	MachineName, BeamLabel, Geometry, Edge string
+	Quantity                               halfmark.Quantity
+	Method                                 halfmark.Method
+	BaselineValueMM, BaselineSigmaMM       *float64   // baseline in force; nil = estimate from the period's first points
+	BaselineFrom                           *time.Time // start of the baseline period
+	CUSUMRestart                           *time.Time
+	Times                                  []time.Time
+	ValuesMM                               []float64
+	Kinds                                  []halfmark.CheckKind
+	CheckIDs                               []string
 	// FamilySize is the number of series charted together for this
 	// series' own (per-series) charts; EvaluateMachine sets it to the
 	// machine's series of the same cadence. 0 means 1.
