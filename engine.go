@@ -96,6 +96,12 @@ type StatusOptions struct {
 	Location        *time.Location
 }
 
+// DefaultStatusOptions are the defaults of StatusOptions: a morning check
+// every treatment day (24 h + 6 h grace, weekends skipped; TG-142 daily
+// checks) and a monthly check every 31 days.
+var DefaultStatusOptions = StatusOptions{MorningInterval: 24 * time.Hour, MorningGrace: 6 * time.Hour, SkipWeekends: true,
+	MonthlyInterval: 31 * 24 * time.Hour, Location: time.Local}
+
 // EvaluationStore is what the worker needs of the store to run the drift
 // engine: which machines to evaluate, their series, and one transaction
 // that stores a machine's decisions with their notifications.

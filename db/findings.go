@@ -314,6 +314,11 @@ func (e *EvalSeries) Data() halfmark.SeriesData {
 // escalated to Level 2 or 3.
 func (d *DB) RecordMachineEvaluation(ctx context.Context, ev *halfmark.MachineEvaluation, n halfmark.FindingNotifier) error {
 	return d.tx(ctx, func(tx pgx.Tx) error {
+		// One machine's evaluations are stored one at a time, whatever the
+		// number of workers: the findings of a component stay unique.
+		if _, err := tx.Exec(ctx, `SELECT pg_advisory_xact_lock(hashtextextended('halfmark-machine-evaluation', $1))`, ev.MachineID); err != nil {
+			return err
+		}
 		bySeries := map[int64][]int64{} // series → active findings it is evidence of
 		for i := range ev.Components {
 			c := &ev.Components[i]

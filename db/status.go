@@ -12,8 +12,7 @@ import (
 type StatusOptions = halfmark.StatusOptions
 
 // DefaultStatusOptions are the defaults of StatusOptions.
-var DefaultStatusOptions = StatusOptions{MorningInterval: 24 * time.Hour, MorningGrace: 6 * time.Hour, SkipWeekends: true,
-	MonthlyInterval: 31 * 24 * time.Hour, Location: time.Local}
+var DefaultStatusOptions = halfmark.DefaultStatusOptions
 
 // Status implements halfmark.StatusService with DefaultStatusOptions.
 func (d *DB) Status(ctx context.Context) ([]halfmark.MachineStatus, error) {
