@@ -7,9 +7,6 @@ import (
 	"log/slog"
 	"time"
 
-	"github.com/jackc/pgx/v5"
-
-	"halfmark"
 	"halfmark/worker"
 	"halfmark/worker/notify"
 )
@@ -52,7 +49,8 @@ func (w workerFlags) build(e env, st *store, log *slog.Logger, observe func(stri
 		return nil, err
 	}
 	ncfg.Location = loc
-	deliverer := notify.New(st.Pool, ncfg, log)
+	composer := notify.NewComposer(ncfg)
+	deliverer := notify.New(st.DB, ncfg, log)
 	return worker.New(st.DB, worker.Config{
 		TolerancesPath:  w.tolerances,
 		Location:        loc,
@@ -60,11 +58,9 @@ func (w workerFlags) build(e env, st *store, log *slog.Logger, observe func(stri
 		DeliverySpec:    "@every " + w.deliverEvery.String(),
 		Observe:         observe,
 		BatchSize:       w.batch,
-		EnqueueAlert: func(ctx context.Context, tx pgx.Tx, al halfmark.Alert) error {
-			return notify.EnqueueAlert(ctx, tx, al, ncfg)
-		},
+		Notifier:        composer,
 		EnqueueDigest: func(ctx context.Context, day time.Time, loc *time.Location) error {
-			return notify.EnqueueDigest(ctx, st.Pool, day, loc, ncfg)
+			return notify.EnqueueDigest(ctx, st.DB, composer, day, loc)
 		},
 		Deliver: deliverer.RunOnce,
 	}, log)
