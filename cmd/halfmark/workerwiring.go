@@ -47,15 +47,17 @@ func (w workerFlags) build(e env, st *store, log *slog.Logger, observe func(stri
 		return nil, err
 	}
 	ncfg.Location = loc
-	deliverer := notify.New(st.Pool, ncfg, log)
+	composer := notify.NewComposer(ncfg)
+	deliverer := notify.New(st.DB, ncfg, log)
 	return worker.New(st.DB, worker.Config{
 		TolerancesPath:  w.tolerances,
 		Location:        loc,
 		IncrementalSpec: "@every " + w.evaluateEvery.String(),
 		DeliverySpec:    "@every " + w.deliverEvery.String(),
 		Observe:         observe,
+		Notifier:        composer,
 		EnqueueDigest: func(ctx context.Context, day time.Time, loc *time.Location) error {
-			return notify.EnqueueDigest(ctx, st.Pool, day, loc, ncfg)
+			return notify.EnqueueDigest(ctx, st.DB, composer, day, loc)
 		},
 		Deliver: deliverer.RunOnce,
 	}, log)
