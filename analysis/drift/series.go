@@ -216,7 +216,7 @@ func prepare(s *SeriesInput, book halfmark.ToleranceBook, d Detection, now time.
 	if s.CUSUMRestart != nil {
 		in.CUSUMRestart = *s.CUSUMRestart
 	}
-	o := Options{BaselinePoints: d.BaselinePoints, NelsonRules: []int{}, Horizon: time.Duration(d.HorizonDays * float64(24*time.Hour)),
+	o := Options{BaselinePoints: d.BaselinePoints, FullBaseline: true, NelsonRules: []int{}, Horizon: time.Duration(d.HorizonDays * float64(24*time.Hour)),
 		InControlPoints: d.ResolveSessions, FamilySize: max(s.FamilySize, 1), Now: now}
 	v, err := Evaluate(in, o)
 	if err != nil {
