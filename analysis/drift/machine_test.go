@@ -2,6 +2,7 @@ package drift
 
 import (
 	"math"
+	"strings"
 	"testing"
 	"time"
 
@@ -168,24 +169,13 @@ func TestDetectionValidate(t *testing.T) {
 		t.Fatal("a bad design validated")
 	}
 	for _, key := range []string{"daily.cusum_k", "nelson_rules", "ewma_lambda"} {
-		if !contains(err.Error(), key) {
+		if !strings.Contains(err.Error(), key) {
 			t.Errorf("error %q does not name %s", err, key)
 		}
 	}
 	if _, err := EvaluateMachine(nil, testBook{}, bad, t0); err == nil {
 		t.Error("EvaluateMachine accepted a bad design")
 	}
-}
-
-func contains(s, sub string) bool { return len(s) >= len(sub) && (s == sub || len(sub) == 0 || indexOf(s, sub) >= 0) }
-
-func indexOf(s, sub string) int {
-	for i := 0; i+len(sub) <= len(s); i++ {
-		if s[i:i+len(sub)] == sub {
-			return i
-		}
-	}
-	return -1
 }
 
 func series(id int64, edge string, q halfmark.Quantity, m halfmark.Method, base, sigma *float64, ts []time.Time, x []float64) SeriesInput {
@@ -233,8 +223,8 @@ func TestSeriesVerdictWords(t *testing.T) {
 }
 
 // A jaw seen by two methods (typed and EPID), each with its own baseline,
-// feeds one component: a 0.3 mm outward shift of Y2 in both (σ 0.1 mm,
-// 2σ... 3σ per view) gives one jaw finding pooling both views.
+// feeds one component: a 0.3 mm outward shift of Y2 in both (σ 0.1 mm:
+// 3σ per view) gives one jaw finding pooling both views.
 func TestMethodsFeedOneComponent(t *testing.T) {
 	n := 80
 	ts := days(n)
