@@ -397,6 +397,14 @@ func judge(x *component, ps []*prepared, book halfmark.ToleranceBook, d Detectio
 		if r.Level == halfmark.LevelInControl {
 			r.Level = halfmark.LevelInspect // still inspected until the component is back in control
 		}
+		if len(r.Rules) == 0 {
+			// Quiet now but not yet back in control: the rules of the episode.
+			for _, p := range r.Sessions[start : last+1] {
+				for _, f := range p.Signals {
+					r.Rules = appendUnique(r.Rules, f)
+				}
+			}
+		}
 	} else {
 		r.MagnitudeMM = newest.MM
 		r.MagnitudeCIMM = [2]float64{newest.MM - 1.96*newest.SEMM, newest.MM + 1.96*newest.SEMM}

@@ -306,3 +306,44 @@ func TestLeafResidual(t *testing.T) {
 		t.Errorf("active findings %v, want %v", got, want)
 	}
 }
+
+// A transient jump opens a finding that resolves itself once the pooled
+// chart has been clean for Detection.ResolveSessions sessions (stated
+// model: a 0.5 mm jump of one typed view, σ 0.1 mm, on sessions 40–42).
+func TestFindingResolves(t *testing.T) {
+	n := 100
+	ts := days(n)
+	x := make([]float64, n)
+	for i := range x {
+		x[i] = 50 + 0.1*math.Sin(float64(i)*2.3)
+		if i >= 40 && i <= 42 {
+			x[i] += 0.5
+		}
+	}
+	s := []SeriesInput{series(1, "X1", halfmark.QPosition, halfmark.MethodTyped, ptr(50), ptr(0.1), ts, x)}
+	d := DefaultDetection()
+	during, err := EvaluateMachine(truncate(s, ts[43]), testBook{}, d, ts[43])
+	if err != nil {
+		t.Fatal(err)
+	}
+	if c := during.Components[0]; !c.Active || c.BackInControl || c.Onset == nil || !c.Onset.Equal(ts[40]) {
+		t.Errorf("during the jump: active %v, back %v, onset %v; want an active finding from %s", c.Active, c.BackInControl, c.Onset, ts[40].Format("2006-01-02"))
+	}
+	after, _ := EvaluateMachine(s, testBook{}, d, ts[n-1])
+	c := after.Components[0]
+	if c.Active || !c.BackInControl || c.Level != 0 {
+		t.Errorf("long after the jump: active %v, back %v, level %d; want back in control", c.Active, c.BackInControl, c.Level)
+	}
+	// The first session from which the newest ResolveSessions are clean.
+	clean := 0
+	for _, p := range c.Sessions {
+		if p.Flags != 0 {
+			clean = 0
+		} else {
+			clean++
+		}
+	}
+	if clean < d.ResolveSessions {
+		t.Errorf("only %d clean sessions at the end", clean)
+	}
+}
