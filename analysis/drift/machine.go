@@ -318,6 +318,12 @@ func kindRank(k halfmark.ComponentKind) int {
 // crossing.
 func judge(x *component, ps []*prepared, book halfmark.ToleranceBook, d Detection, m int, now time.Time) ComponentResult {
 	cd := d.familyDesign(x.cadence, m)
+	if e := estimationOf(x, ps, d); d.EstimatedCorrection && !e.none() {
+		cd.H, cd.L = cachedCorrected(cd.K, cd.AC, e)
+		if d.EWMAAlerts {
+			cd.EWMAL = cd.L
+		}
+	}
 	r := ComponentResult{Component: x.comp, Cadence: x.cadence, Limits: x.limits,
 		CUSUMK: cd.K, CUSUMH: cd.H, ShewhartL: cd.L, EWMAL: cd.EWMAL, FamilySize: m}
 	if len(x.members) > 0 {
@@ -390,6 +396,14 @@ func judge(x *component, ps []*prepared, book halfmark.ToleranceBook, d Detectio
 		trendSince(&r, oi, d, now)
 		if r.Level == halfmark.LevelInControl {
 			r.Level = halfmark.LevelInspect // still inspected until the component is back in control
+		}
+		if len(r.Rules) == 0 {
+			// Quiet now but not yet back in control: the rules of the episode.
+			for _, p := range r.Sessions[start : last+1] {
+				for _, f := range p.Signals {
+					r.Rules = appendUnique(r.Rules, f)
+				}
+			}
 		}
 	} else {
 		r.MagnitudeMM = newest.MM
@@ -604,4 +618,47 @@ func trendSince(r *ComponentResult, oi int, d Detection, now time.Time) {
 	r.Level = max(r.Level, halfmark.LevelInspect)
 	r.Rules = appendUnique(r.Rules, FamilyTrend)
 	r.Direction = dir
+}
+
+// estimationOf is the estimation error of a component's pooled z, from the
+// views of its newest session with a σ (estimated.go).
+func estimationOf(x *component, ps []*prepared, d Detection) estimationError {
+	var e estimationError
+	for si := len(x.sess) - 1; si >= 0; si-- {
+		var tot float64
+		for _, v := range x.sess[si].views {
+			if v.sigma > 0 {
+				tot += share(x, v)
+			}
+		}
+		if tot == 0 {
+			continue
+		}
+		var a2 float64
+		for _, v := range x.sess[si].views {
+			if v.sigma <= 0 {
+				continue
+			}
+			a := share(x, v) / tot
+			p := ps[v.series]
+			if p.estimated {
+				e.vb += a / float64(d.BaselinePoints)
+			}
+			if p.estSigma {
+				a2 += a * a
+			}
+		}
+		e.sdEps = 2 * cvSigmaHat(d.BaselinePoints) * math.Sqrt(a2)
+		return e
+	}
+	return e
+}
+
+// share is a view's unnormalised share of the pooled variance: w²σ² = 1/σ²
+// for inverse-variance weights, σ² for a plain mean.
+func share(x *component, v view) float64 {
+	if x.equal {
+		return v.sigma * v.sigma
+	}
+	return 1 / (v.sigma * v.sigma)
 }

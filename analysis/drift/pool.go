@@ -2,6 +2,7 @@ package drift
 
 import (
 	"math"
+	"slices"
 	"sort"
 	"time"
 
@@ -80,7 +81,12 @@ func poolEqual(vs []view, rho float64) (mean, se float64, n int, ok bool) {
 
 // sessionsOf groups views by day, in time order.
 func sessionsOf(vs []view) []session {
-	sort.SliceStable(vs, func(i, j int) bool { return vs[i].at.Before(vs[j].at) })
+	slices.SortFunc(vs, func(a, b view) int {
+		if c := a.at.Compare(b.at); c != 0 {
+			return c
+		}
+		return a.series - b.series
+	})
 	var out []session
 	for _, v := range vs {
 		d := dayOf(v.at)

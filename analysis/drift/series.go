@@ -121,6 +121,7 @@ type prepared struct {
 	hasCentre bool    // the centre is known (set, zero for light offsets, or estimated)
 	sigma     float64 // σ used by the charts (widened when estimated), 0 while pending
 	estimated bool    // the centre came from the period's first points
+	estSigma  bool    // σ came from the period's first points
 	limits    *halfmark.Limits
 	kind      halfmark.CheckKind
 	asym      bool
@@ -200,12 +201,10 @@ func prepare(s *SeriesInput, book halfmark.ToleranceBook, d Detection, now time.
 		if err == nil && len(x) >= d.BaselinePoints {
 			if b.ValueMM == nil {
 				p.estimated = true
-				if d.EstimatedWiden {
-					sg *= math.Sqrt(1 + 1/float64(d.BaselinePoints))
-				}
 				b.ValueMM = &c
 			}
 			if b.SigmaMM == nil {
+				p.estSigma = true
 				b.SigmaMM = &sg
 			}
 		}
@@ -217,7 +216,7 @@ func prepare(s *SeriesInput, book halfmark.ToleranceBook, d Detection, now time.
 	if s.CUSUMRestart != nil {
 		in.CUSUMRestart = *s.CUSUMRestart
 	}
-	o := Options{BaselinePoints: d.BaselinePoints, NelsonRules: []int{}, Horizon: time.Duration(d.HorizonDays * float64(24*time.Hour)),
+	o := Options{BaselinePoints: d.BaselinePoints, FullBaseline: true, NelsonRules: []int{}, Horizon: time.Duration(d.HorizonDays * float64(24*time.Hour)),
 		InControlPoints: d.ResolveSessions, FamilySize: max(s.FamilySize, 1), Now: now}
 	v, err := Evaluate(in, o)
 	if err != nil {
