@@ -96,6 +96,9 @@ type FieldResult struct {
 	PixelSizeXMM float64 `json:"pixel_size_x_mm"` // column pitch at the isocentre
 	PixelSizeYMM float64 `json:"pixel_size_y_mm"` // row pitch at the isocentre
 	AxisSource   string  `json:"axis_source"`
+	// Geometry is what the decoder read and used to place the image and
+	// name its edges (nil for images not decoded from DICOM).
+	Geometry *GeometryUsed `json:"geometry_used,omitempty"`
 	// CentralValue and Background are the crossline profile's central value
 	// and background (mean of its lowest 10%), in signal units.
 	CentralValue float64  `json:"central_value"`
@@ -206,6 +209,7 @@ func AnalyzeField(img Image, o FieldOptions) (FieldResult, error) {
 		PixelSizeXMM:  sx,
 		PixelSizeYMM:  sy,
 		AxisSource:    axisSrc,
+		Geometry:      img.Geometry,
 		CentralValue:  xe.central,
 		Background:    xe.bg,
 	}
@@ -242,14 +246,16 @@ func AnalyzeField(img Image, o FieldOptions) (FieldResult, error) {
 	if hi-lo > 2*o.RotationWarnDeg {
 		warn = append(warn, fmt.Sprintf("field edges are not parallel (edge angles X1 %.2f°, X2 %.2f°, Y1 %.2f°, Y2 %.2f°): a jaw may be tilted, or the field is not rectangular", ang[EdgeX1], ang[EdgeX2], ang[EdgeY1], ang[EdgeY2]))
 	}
-	warn = append(warn, collimatorWarning(img.CollimatorDeg)...)
+	warn = append(warn, collimatorWarning(img)...)
 	res.Warnings = append(append([]string{}, img.Warnings...), warn...)
 	return res, nil
 }
 
-// collimatorWarning warns when the collimator angle tag is not 0°.
-func collimatorWarning(deg *float64) []string {
-	if deg == nil {
+// collimatorWarning warns when an image not placed by DecodeDICOM carries a
+// collimator angle other than 0°: its names are not remapped.
+func collimatorWarning(img Image) []string {
+	deg := img.CollimatorDeg
+	if deg == nil || img.Geometry != nil {
 		return nil
 	}
 	a := math.Mod(*deg, 360)

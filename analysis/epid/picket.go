@@ -102,6 +102,7 @@ type PicketResult struct {
 	PixelSizeXMM     float64         `json:"pixel_size_x_mm"`
 	PixelSizeYMM     float64         `json:"pixel_size_y_mm"`
 	AxisSource       string          `json:"axis_source"`
+	Geometry         *GeometryUsed   `json:"geometry_used,omitempty"`
 	Warnings         []string        `json:"warnings"`
 }
 
@@ -281,6 +282,7 @@ func AnalyzePicketFence(img Image, o PicketOptions) (PicketResult, error) {
 		PixelSizeXMM:    sx,
 		PixelSizeYMM:    sy,
 		AxisSource:      axisSrc,
+		Geometry:        img.Geometry,
 		PairsNotImaged:  notImaged,
 		PairsNotExposed: []int{},
 		Leaves:          []LeafResult{},
@@ -413,7 +415,7 @@ func AnalyzePicketFence(img Image, o PicketOptions) (PicketResult, error) {
 	if len(notImaged) > 0 {
 		warn = append(warn, fmt.Sprintf("%d leaf pair(s) of layout %q lie outside the image", len(notImaged), o.Layout.Name))
 	}
-	warn = append(warn, collimatorWarning(img.CollimatorDeg)...)
+	warn = append(warn, collimatorWarning(img)...)
 	res.Warnings = append(append([]string{}, img.Warnings...), warn...)
 	return res, nil
 }
