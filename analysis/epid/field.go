@@ -189,6 +189,15 @@ func AnalyzeField(img Image, o FieldOptions) (FieldResult, error) {
 	if err != nil {
 		return FieldResult{}, err
 	}
+	scale := valueScale(img)
+	for _, e := range []struct {
+		axis string
+		pe   profileEdges
+	}{{"X (crossline)", xe}, {"Y (inline)", ye}} {
+		if err := checkContrast(e.pe.central-e.pe.bg, scale, "field", e.axis); err != nil {
+			return FieldResult{}, err
+		}
+	}
 
 	ang, angWarn := edgeAngles(img, s, cx, cy, sx, sy, o, xe.bg, ye.bg)
 	warn = append(warn, angWarn...)
@@ -266,6 +275,32 @@ func collimatorWarning(img Image) []string {
 		return nil
 	}
 	return []string{fmt.Sprintf("collimator angle is %.1f°: edge and bank names follow the image sides at collimator 0 and are not remapped", *deg)}
+}
+
+// MinContrastFraction is the smallest step between background and field
+// (or picket strip) accepted, as a fraction of the signal range: the largest
+// absolute stored value of the image. A real portal field stands out by
+// most of that range; a step of a few counts on a flat image is not a field
+// (common practice: 5% is far below any exposed field and far above
+// rounding).
+const MinContrastFraction = 0.05
+
+// valueScale is the signal range of the image: max |stored value|.
+func valueScale(im Image) float64 {
+	m := 0.0
+	for _, v := range im.Pix {
+		m = math.Max(m, math.Abs(v))
+	}
+	return m
+}
+
+// checkContrast refuses a contrast below MinContrastFraction of scale.
+func checkContrast(contrast, scale float64, what, axis string) error {
+	if contrast >= MinContrastFraction*scale && contrast > 0 {
+		return nil
+	}
+	return fmt.Errorf("%w: no real %s along %s: it stands %.4g above the background, %.2g%% of the signal range %.4g; at least %.0f%% is needed (is the image flat or unexposed?)",
+		ErrNoField, what, axis, contrast, 100*contrast/math.Max(scale, math.SmallestNonzeroFloat64), scale, 100*MinContrastFraction)
 }
 
 // halfBand converts a band width in mm to a half-width in samples.
