@@ -68,13 +68,17 @@ var (
 // and ImagePlanePixelSpacing (3002,0011, row spacing first), or from the
 // overrides in o; a missing value gives an error wrapping ErrMissingTag that
 // names each missing attribute (a *TagError per attribute, joined). The
-// central axis comes from RTImagePosition (3002,0012): the x, y position in mm
-// of the first pixel in the RT Image plane, whose origin is on the beam axis
-// and whose y axis points up the image (PS3.3 C.8.8.2, from memory), so
-// AxisCol = -x/ColSpacing and AxisRow = y/RowSpacing. Gantry and collimator
-// angles come from GantryAngle (300A,011E) and BeamLimitingDeviceAngle
-// (300A,0120), at the top level or in the first ExposureSequence (3002,0030)
-// item. PhotometricInterpretation MONOCHROME1 sets Image.Inverted.
+// image is then placed in the beam-limiting-device frame by placeImage: the
+// central axis from RTImagePosition (3002,0012) and
+// XRayImageReceptorTranslation (3002,000D) (PS3.3 C.8.8.2), rows and columns
+// remapped for RTImageOrientation (3002,0010) and the collimator quadrant,
+// so that X1 is on the left and Y2 at the top of Image.Pix; Image.Geometry
+// says what was used. Gantry and collimator angles come from GantryAngle
+// (300A,011E) and BeamLimitingDeviceAngle (300A,0120), at the top level or
+// in the first ExposureSequence (3002,0030) item (o.CollimatorDeg supplies
+// or overrides the latter). PhotometricInterpretation MONOCHROME1 sets
+// Image.Inverted. Geometry that cannot be named with certainty is refused
+// with a *TagError naming the attribute (see placeImage).
 //
 // Compressed, encapsulated, colour and 1-bit images give ErrUnsupported;
 // broken files give ErrNotDICOM. It never panics: the length fields are
