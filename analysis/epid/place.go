@@ -60,10 +60,7 @@ func placeImage(ds *dicom.Dataset, o DecodeOptions, im *Image, imagerPlane bool,
 	g.ReceptorTranslationMM = tr
 
 	// Collimator angle and the quadrant that names the edges.
-	coll, cwarn, err := collimatorAngle(o.CollimatorDeg, fileColl, g)
-	if err != nil {
-		return nil, err
-	}
+	coll, cwarn := collimatorAngle(o.CollimatorDeg, fileColl, g)
 	warn = append(warn, cwarn...)
 	q := 0
 	if coll != nil {
@@ -135,7 +132,7 @@ func placeImage(ds *dicom.Dataset, o DecodeOptions, im *Image, imagerPlane bool,
 
 // collimatorAngle chooses the collimator angle: the caller's, else the
 // file's; a missing angle gives a warning that travels with every result.
-func collimatorAngle(opt, file *float64, g *GeometryUsed) (*float64, []string, error) {
+func collimatorAngle(opt, file *float64, g *GeometryUsed) (*float64, []string) {
 	var warn []string
 	switch {
 	case opt != nil:
@@ -153,5 +150,5 @@ func collimatorAngle(opt, file *float64, g *GeometryUsed) (*float64, []string, e
 		g.CollimatorSource = "missing: 0° assumed"
 		warn = append(warn, "collimator angle unknown: BeamLimitingDeviceAngle (300A,0120) is missing, so jaw, bank and leaf names assume collimator 0°; state the angle (--collimator-deg, API collimator_deg) if it was not 0°")
 	}
-	return g.CollimatorDeg, warn, nil
+	return g.CollimatorDeg, warn
 }
