@@ -3,7 +3,6 @@ package epid
 import (
 	"fmt"
 	"math"
-	"strings"
 
 	"github.com/suyashkumar/dicom"
 	"github.com/suyashkumar/dicom/pkg/tag"
@@ -281,16 +280,4 @@ func (m frameMap) sides() map[string]string {
 		EdgeX2: side(m.cosQ, m.sinQ), EdgeX1: side(-m.cosQ, -m.sinQ),
 		EdgeY2: side(-m.sinQ, m.cosQ), EdgeY1: side(m.sinQ, -m.cosQ),
 	}
-}
-
-// describeSides writes a sides map as "X1 left, X2 right, Y1 bottom, Y2 top".
-func describeSides(s map[string]string) string {
-	var b strings.Builder
-	for i, e := range []string{EdgeX1, EdgeX2, EdgeY1, EdgeY2} {
-		if i > 0 {
-			b.WriteString(", ")
-		}
-		b.WriteString(e + " " + s[e])
-	}
-	return b.String()
 }

@@ -77,9 +77,6 @@ func placeImage(ds *dicom.Dataset, o DecodeOptions, im *Image, imagerPlane bool,
 	g.NamesQuadrantDeg = 90 * q
 	m := newFrameMap(im.Rows, im.Cols, im.RowSpacingMM, im.ColSpacingMM, row, col, q)
 	g.Sides = m.sides()
-	if q != 0 || !m.identity() {
-		warn = append(warn, fmt.Sprintf("image remapped for the orientation and the collimator at %d°: as stored, %s", 90*q, describeSides(g.Sides)))
-	}
 
 	// Central axis in stored pixel coordinates.
 	g.AxisSource = "image centre"
