@@ -198,7 +198,7 @@ func TestFFFDetection(t *testing.T) {
 func TestFFFErrors(t *testing.T) {
 	yes := true
 	f := erfField{-50, 50, 2, 2}
-	xs := append(grid(-90, 0, 0.5), 30, 48, 70)
+	xs := append(grid(-90, 0, 0.5), 30, 48, 70, 80)
 	_, err := Analyze(sampleAt(f.at, xs, 1, 0, nil), Options{FFF: &yes})
 	if !errors.Is(err, ErrFit) || !strings.Contains(err.Error(), "right edge") || !strings.Contains(err.Error(), "sample the penumbra more finely") {
 		t.Fatalf("got %v, want ErrFit about the right edge", err)
