@@ -50,7 +50,7 @@ func newBenchEnv(t testing.TB) *env {
 	}
 	t.Cleanup(d.Close)
 	e := &env{t: t, db: d, tokens: map[halfmark.Role]string{}}
-	e.srv = newHTTPServer(api.New(api.Services{Machines: d, Checks: d, Series: d, Auth: d, Audit: d, Pinger: d, Raw: d, Metrics: api.NewMetrics(d)}))
+	e.srv = newHTTPServer(api.New(api.Services{Machines: d, Checks: d, Series: d, Auth: d, Audit: d, Pinger: d, Raw: d, Metrics: api.NewMetrics(d), Penumbra: d}))
 	t.Cleanup(e.srv.Close)
 	for _, r := range []halfmark.Role{halfmark.RoleTherapist, halfmark.RolePhysicist, halfmark.RoleAdmin} {
 		_, s, err := d.CreateToken(ctx, halfmark.CLIActor("test"), "t-"+string(r), r)

@@ -21,6 +21,9 @@ func (h *handlers) routes(e *echo.Echo) {
 	v1.GET("/machines/:id/beams", h.listBeams, therapist)
 	v1.POST("/machines/:id/beams", h.createBeam, admin)
 	v1.GET("/machines/:id/series", h.machineSeries, therapist)
+	v1.PATCH("/machines/:id", h.patchMachine, admin)
+	v1.GET("/beams/:id/penumbra-model", h.getPenumbraModel, therapist)
+	v1.POST("/beams/:id/penumbra-model/predict", h.predictPenumbra, therapist)
 
 	v1.POST("/checks", h.createCheck, therapist)
 	v1.POST("/checks/batch", h.createBatch, therapist)

@@ -29,6 +29,8 @@ type Services struct {
 	Metrics     *Metrics                   // nil: no /metrics
 	Log         *slog.Logger
 	Now         func() time.Time
+
+	Penumbra halfmark.PenumbraService // penumbra model data (nil: its routes answer 503)
 }
 
 // New returns an echo server with the error handler and the API routes.

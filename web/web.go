@@ -65,6 +65,10 @@ type Deps struct {
 	// (default 12 h); SessionMaxAge ends it in any case (default 7 days).
 	SessionIdle   time.Duration
 	SessionMaxAge time.Duration
+
+	// Penumbra reads penumbra data for the beam page (nil: the page says
+	// the model is not available).
+	Penumbra halfmark.PenumbraService
 }
 
 // Register adds the dashboard's routes, with their security headers,

@@ -117,6 +117,8 @@ func TestAccessControlMatrix(t *testing.T) {
 		"POST /series/:id/period": "physicist", "POST /alerts/:id/acknowledge": "physicist", "POST /alerts/:id/resolve": "physicist",
 		"GET /entry": "therapist", "POST /entry": "therapist", "GET /monthly": "therapist", "POST /monthly/analyze": "therapist",
 		"POST /monthly/save": "therapist", "GET /raw/:id": "therapist", "GET /metrics": "",
+		"PATCH /api/v1/machines/:id": "admin", "GET /api/v1/beams/:id/penumbra-model": "therapist",
+		"POST /api/v1/beams/:id/penumbra-model/predict": "therapist", "GET /machines/:id/beams/:beam": "therapist",
 	}
 	ids := strings.NewReplacer(":id", "", "*", "halfmark.css")
 	pathFor := func(route string) string {

@@ -122,9 +122,9 @@ func runParts(ctx context.Context, e env, st *store, f serveFlags, log *slog.Log
 // /metrics on one echo server.
 func newHandler(d *db.DB, wk *worker.Worker, log *slog.Logger, metrics *api.Metrics) (http.Handler, error) {
 	h := api.New(api.Services{Machines: d, Checks: d, Series: d, Auth: d, Audit: d, Pinger: d, Log: log,
-		Alerts: d, Status: d, Events: d, Findings: d, Evaluations: d, Raw: d, Metrics: metrics})
+		Alerts: d, Status: d, Events: d, Findings: d, Evaluations: d, Raw: d, Metrics: metrics, Penumbra: d})
 	err := web.Register(h, web.Deps{Machines: d, Checks: d, Series: d, Users: d, Sessions: d, SignOffs: d,
-		Raw: d, Status: d, Alerts: d, Events: d, Audit: d, Tolerances: liveBook{wk}, Log: log})
+		Raw: d, Status: d, Alerts: d, Events: d, Audit: d, Tolerances: liveBook{wk}, Log: log, Penumbra: d})
 	return h, err
 }
 
