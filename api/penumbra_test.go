@@ -113,7 +113,7 @@ func synthScans(t *testing.T, e *env, machineID, beamID int64, setups [][2]float
 	for k := 0; k < sessions; k++ {
 		for si, s := range setups {
 			ssd, d := s[0], s[1]
-			c := halfmark.Check{MachineID: machineID, BeamID: beamID, Kind: halfmark.KindMonthly,
+			c := halfmark.Check{Method: halfmark.MethodScan, MachineID: machineID, BeamID: beamID, Kind: halfmark.KindMonthly,
 				MeasuredAt: t0.AddDate(0, 0, k).Add(time.Duration(si) * time.Minute),
 				Setup:      halfmark.Setup{SSDcm: &ssd, DepthCm: &d, FieldXcm: ptr(20.0), FieldYcm: ptr(20.0)}}
 			for _, edge := range []string{"X1", "X2", "Y1", "Y2", "B1P30", "B2P30"} {

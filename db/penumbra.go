@@ -77,18 +77,17 @@ func (d *DB) beamMachine(ctx context.Context, beamID int64) (halfmark.Beam, half
 }
 
 // penumbraPointsSQL reads the current penumbra values of a beam that carry
-// an SSD and a depth. Until checks carry a measurement method, a check with
-// SSD and depth is a water-tank or array scan: the method filter is the
-// last condition ($4 = 'scan').
+// an SSD and a depth, measured with one method ($4): values of different
+// methods carry different systematic offsets and are never fitted together.
 const penumbraPointsSQL = `
-SELECT c.measured_at, c.ssd_cm, c.depth_cm, c.geometry, er.edge, er.penumbra_mm, 'scan' AS method
+SELECT c.measured_at, c.ssd_cm, c.depth_cm, c.geometry, er.edge, er.penumbra_mm, c.method
 FROM checks c
 CROSS JOIN LATERAL jsonb_to_recordset(c.edges) AS er(edge text, penumbra_mm float8)
 WHERE c.beam_id = $1
   AND er.penumbra_mm IS NOT NULL AND c.ssd_cm IS NOT NULL AND c.depth_cm IS NOT NULL
   AND NOT EXISTS (SELECT 1 FROM checks x WHERE x.supersedes = c.id)
   AND c.measured_at >= $2 AND c.measured_at < $3
-  AND $4 = 'scan'
+  AND c.method = $4
 ORDER BY c.measured_at, c.id, er.edge`
 
 // PenumbraMethods implements halfmark.PenumbraService.
@@ -96,19 +95,25 @@ func (d *DB) PenumbraMethods(ctx context.Context, beamID int64) (map[halfmark.Me
 	if _, _, err := d.beamMachine(ctx, beamID); err != nil {
 		return nil, err
 	}
-	var n int
-	err := d.Pool.QueryRow(ctx, `SELECT count(*) FROM checks c
+	rows, err := d.Pool.Query(ctx, `SELECT c.method, count(*) FROM checks c
 		CROSS JOIN LATERAL jsonb_to_recordset(c.edges) AS er(edge text, penumbra_mm float8)
 		WHERE c.beam_id = $1 AND er.penumbra_mm IS NOT NULL AND c.ssd_cm IS NOT NULL AND c.depth_cm IS NOT NULL
-		  AND NOT EXISTS (SELECT 1 FROM checks x WHERE x.supersedes = c.id)`, beamID).Scan(&n)
+		  AND NOT EXISTS (SELECT 1 FROM checks x WHERE x.supersedes = c.id)
+		GROUP BY c.method`, beamID)
 	if err != nil {
 		return nil, mapErr(err)
 	}
+	defer rows.Close()
 	out := map[halfmark.Method]int{}
-	if n > 0 {
-		out[halfmark.MethodScan] = n
+	for rows.Next() {
+		var m string
+		var n int
+		if err := rows.Scan(&m, &n); err != nil {
+			return nil, mapErr(err)
+		}
+		out[halfmark.Method(m)] = n
 	}
-	return out, nil
+	return out, mapErr(rows.Err())
 }
 
 // farFuture stands for "no end" in time ranges.

@@ -84,7 +84,7 @@ func TestPenumbraPoints(t *testing.T) {
 	t0 := time.Date(2026, 3, 2, 9, 0, 0, 0, time.UTC)
 	tank := halfmark.Setup{SSDcm: fp(90), DepthCm: fp(10), FieldXcm: fp(20), FieldYcm: fp(20)}
 	rec := func(at time.Time, s halfmark.Setup, pen float64, supersedes string) string {
-		c := halfmark.Check{MachineID: m.ID, BeamID: b.ID, Kind: halfmark.KindMonthly, MeasuredAt: at, Setup: s, Supersedes: supersedes,
+		c := halfmark.Check{Method: halfmark.MethodScan, MachineID: m.ID, BeamID: b.ID, Kind: halfmark.KindMonthly, MeasuredAt: at, Setup: s, Supersedes: supersedes,
 			Edges: []halfmark.EdgeResult{{Edge: "X1", PositionMM: 100, PenumbraMM: fp(pen)}, {Edge: "Y2", PositionMM: 100, PenumbraMM: fp(pen + 1)}, {Edge: "X2", PositionMM: 100}}}
 		sc, _, err := d.RecordCheck(ctx, a, &c)
 		if err != nil {
