@@ -309,7 +309,11 @@ func (s *server) estimatedDeviation(ctx context.Context, seriesID int64, checkID
 	if err != nil {
 		return 0, false
 	}
-	v := s.viewSeries(ser, pts, s.d.Now(), s.familySize(ctx, ser.MachineID))
+	ev, err := s.seriesEvaluation(ctx, seriesID)
+	if err != nil {
+		return 0, false
+	}
+	v := viewSeries(ser, pts, ev)
 	if !v.HasCentre {
 		return 0, false
 	}
@@ -319,13 +323,4 @@ func (s *server) estimatedDeviation(ctx context.Context, seriesID int64, checkID
 		}
 	}
 	return 0, false
-}
-
-// familySize is the number of series of a machine (1 when unknown).
-func (s *server) familySize(ctx context.Context, machineID int64) int {
-	ss, err := s.d.Series.MachineSeries(ctx, machineID)
-	if err != nil || len(ss) == 0 {
-		return 1
-	}
-	return len(ss)
 }

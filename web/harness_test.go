@@ -166,6 +166,7 @@ func newHarness(t testing.TB, o harnessOpts) *harness {
 	}
 	if o.engine {
 		deps.Status, deps.Alerts, deps.Events, deps.Tolerances = d, d, d, tolerance.Shipped()
+		deps.Findings, deps.Evaluations = d, d
 	}
 	if err := web.Register(e, deps); err != nil {
 		t.Fatal(err)

@@ -58,8 +58,12 @@ type Deps struct {
 	Events     ServiceEventLister
 	Audit      halfmark.AuditService
 	Tolerances halfmark.ToleranceBook
-	Log        *slog.Logger
-	Now        func() time.Time
+	// Findings and Evaluations read what the drift engine decided (nil:
+	// the pages say it is not available).
+	Findings    halfmark.FindingService
+	Evaluations halfmark.EvaluationService
+	Log         *slog.Logger
+	Now         func() time.Time
 
 	// SessionIdle ends a session after this long without a request
 	// (default 12 h); SessionMaxAge ends it in any case (default 7 days).

@@ -116,6 +116,11 @@ func EvaluateMachine(machineID int64, ss []halfmark.SeriesData, book halfmark.To
 		s := ss[i]
 		e := r.Evaluation
 		e.ToleranceHash = book.Hash()
+		if tr := r.Verdict.Trend; tr != nil && len(s.Times) > 0 {
+			e.Trend = &halfmark.SeriesTrend{Method: tr.Method, Points: tr.Points, From: tr.From, To: s.Times[len(s.Times)-1],
+				FromMM: tr.FittedFirst, ToMM: tr.FittedLast, SlopePer30dMM: tr.SlopePer30d, CILowMM: tr.CILow, CIHighMM: tr.CIHigh,
+				Significant: tr.Significant}
+		}
 		sv := halfmark.SeriesVerdict{Series: s, Evaluation: e, BackInControl: r.Verdict.Resolved}
 		for _, sg := range r.Signals {
 			sv.Signals = append(sv.Signals, halfmark.SeriesSignal{Family: sg.Family, Rule: sg.Rule, Level: sg.Level,
