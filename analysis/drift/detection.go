@@ -67,6 +67,12 @@ type Detection struct {
 	// ViewCorrelation is ρ, the correlation assumed between views of one
 	// component measured on the same day (pooled variance, pool.go).
 	ViewCorrelation float64 `toml:"view_correlation"`
+	// MinChangeFraction is the smallest change worth a finding, as a
+	// fraction of the component's tolerance: the CUSUM reference value is
+	// at least half of it in mm, so that a pooled chart whose views are
+	// very precise does not accumulate offsets far below any clinical
+	// relevance (e.g. a stored baseline a few hundredths of a mm off).
+	MinChangeFraction float64 `toml:"min_change_fraction"`
 	// TrendMinSessions is the fewest sessions since the onset that a trend
 	// is fitted to.
 	TrendMinSessions int `toml:"trend_min_sessions"`
@@ -94,6 +100,9 @@ type Detection struct {
 //   - N = 20 baseline points (Montgomery §6.4 recommends 20–25 for
 //     individuals), with the charts widened for the estimation error
 //     (estimated.go);
+//   - smallest change worth a finding 5% of the tolerance (0.1 mm for a
+//     2 mm jaw tolerance: the 1σ-per-view shift the daily design is tuned
+//     to; common practice for an indifference zone, local choice of value);
 //   - views independent (ρ = 0): each view is a separate exposure or
 //     reading in its own check; a site that sees shared daily error sets ρ;
 //   - trend on at least 5 sessions since the onset; a date only when the
@@ -111,6 +120,7 @@ func DefaultDetection() Detection {
 		ResolveSessions:     5,
 		BaselinePoints:      20,
 		EstimatedCorrection: true,
+		MinChangeFraction:   0.05,
 		TrendMinSessions:    5,
 		ProjectionMaxRelCI:  0.2,
 	}
@@ -154,6 +164,9 @@ func (d Detection) Validate() error {
 	if !(d.ViewCorrelation >= 0 && d.ViewCorrelation < 1) {
 		bad("view_correlation", d.ViewCorrelation, "must be in [0, 1)")
 	}
+	if !(d.MinChangeFraction >= 0 && d.MinChangeFraction <= 0.5) {
+		bad("min_change_fraction", d.MinChangeFraction, "must be 0 to 0.5 of the tolerance (0: no floor)")
+	}
 	if d.TrendMinSessions < 5 || d.TrendMinSessions > 1000 {
 		bad("trend_min_sessions", float64(d.TrendMinSessions), "must be 5 to 1000 sessions (Sen's interval needs 6 points at 95%)")
 	}
@@ -186,6 +199,7 @@ type chartDesign struct {
 	K, H, L, EWMAL float64
 	Components     int
 	AC             float64 // per-chart two-sided in-control ARL target, sessions
+	minChangeMM    float64 // smallest change worth a finding, mm (0: none)
 }
 
 func (d Detection) familyDesign(cadence string, m int) chartDesign {

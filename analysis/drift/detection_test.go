@@ -43,9 +43,9 @@ type benchSize struct {
 
 func benchSizes(t *testing.T) (benchSize, bool) {
 	if os.Getenv("HALFMARK_DETECTION_FULL") == "1" {
-		return benchSize{falseReps: 100, falseYears: 3, shiftReps: 200, driftReps: 100}, true
+		return benchSize{falseReps: 100, falseYears: 3, shiftReps: 150, driftReps: 80}, true
 	}
-	return benchSize{falseReps: 12, falseYears: 3, shiftReps: 40, driftReps: 16}, false
+	return benchSize{falseReps: 8, falseYears: 3, shiftReps: 24, driftReps: 10}, false
 }
 
 // parallel runs f(rep) for reps on two goroutines (the benchmark's 2 cores).

@@ -318,6 +318,15 @@ func kindRank(k halfmark.ComponentKind) int {
 // crossing.
 func judge(x *component, ps []*prepared, book halfmark.ToleranceBook, d Detection, m int, now time.Time) ComponentResult {
 	cd := d.familyDesign(x.cadence, m)
+	if se := typicalSE(x, d); se > 0 && x.limits != nil && x.limits.ToleranceMM > 0 && d.MinChangeFraction > 0 {
+		// The smallest change worth a finding sets a floor under k
+		// (in mm: half of MinChangeFraction × tolerance).
+		if kmin := d.MinChangeFraction * x.limits.ToleranceMM / (2 * se); kmin > cd.K {
+			cd.K = kmin
+			cd.H = siegmundH(cd.K, 2*cd.AC)
+		}
+		cd.minChangeMM = d.MinChangeFraction * x.limits.ToleranceMM
+	}
 	if e := estimationOf(x, ps, d); d.EstimatedCorrection && !e.none() {
 		cd.H, cd.L = cachedCorrected(cd.K, cd.AC, e)
 		if d.EWMAAlerts {
@@ -455,8 +464,9 @@ func chartSessions(x *component, cd chartDesign, d Detection) []PooledPoint {
 		} else {
 			p.Charted, p.MM, p.SEMM, p.Views = true, mean, se, n
 			p.Z = mean / se
-			cp = math.Max(0, cp+p.Z-cd.K)
-			cm = math.Max(0, cm-p.Z-cd.K)
+			k := math.Max(cd.K, cd.minChangeMM/(2*se))
+			cp = math.Max(0, cp+p.Z-k)
+			cm = math.Max(0, cm-p.Z-k)
 			ew = lam*p.Z + (1-lam)*ew
 			decay *= (1 - lam) * (1 - lam)
 			p.EWMALim = cd.EWMAL * math.Sqrt(lam/(2-lam)*(1-decay))
@@ -661,4 +671,22 @@ func share(x *component, v view) float64 {
 		return v.sigma * v.sigma
 	}
 	return 1 / (v.sigma * v.sigma)
+}
+
+// typicalSE is the standard error (mm) of the component's newest charted
+// session.
+func typicalSE(x *component, d Detection) float64 {
+	for i := len(x.sess) - 1; i >= 0; i-- {
+		var se float64
+		var ok bool
+		if x.equal {
+			_, se, _, ok = poolEqual(x.sess[i].views, d.ViewCorrelation)
+		} else {
+			_, se, _, ok = poolWeighted(x.sess[i].views, d.ViewCorrelation)
+		}
+		if ok && se > 0 {
+			return se
+		}
+	}
+	return 0
 }
