@@ -203,8 +203,10 @@ func TestFrontPageOrder(t *testing.T) {
 // Without a StatusService the front page computes status from the series:
 // a machine whose X2 has drifted 2.5 mm beyond its baseline (Level 2 at a
 // 2 mm tolerance) is listed above a steady one.
-func TestFrontPageComputedStatus(t *testing.T) {
-	h := newHarness(t, harnessOpts{noStatus: true})
+// The front page lists each machine's active findings, as the drift engine
+// stored them, most urgent machine first.
+func TestFrontPageListsFindings(t *testing.T) {
+	h := newHarness(t, harnessOpts{engine: true})
 	m1, b1 := h.machine("Steady linac", 6)
 	m2, b2 := h.machine("Drifting linac", 6)
 	h.history(m1, b1[0], 30, func(int) float64 { return 0 })
@@ -214,10 +216,13 @@ func TestFrontPageComputedStatus(t *testing.T) {
 		}
 		return 0
 	})
+	h.evaluate()
 	c := h.signIn("therapist@example.org")
 	_, body, _ := c.get("/")
 	i, j := strings.Index(body, "Drifting linac"), strings.Index(body, "Steady linac")
 	must(t, i > 0 && j > i, "drifting machine is not listed above the steady one")
+	must(t, strings.Contains(body, "jaw X2") && strings.Contains(body, `href="/findings/`), "the drifting machine's finding on jaw X2 is not listed")
+	must(t, strings.Count(body, `href="/findings/`) == 1, "one fault, one finding line: %d", strings.Count(body, `href="/findings/`))
 	must(t, strings.Contains(body, "Level 2 — scheduled action") || strings.Contains(body, "Level 3 — immediate action"), "no level for the drifting machine")
 }
 
@@ -306,9 +311,20 @@ func TestMachineAndSeriesPages(t *testing.T) {
 			t.Fatal(err)
 		}
 	}
+	// Commissioning baselines of the leaf ends (40.0 mm, σ 0.05 mm): the
+	// engine needs 20 points to estimate one, and there are 7.
+	for _, e := range []string{"B1P30", "B1P31", "B2P30"} {
+		v, sd := 40.0, 0.05
+		ls := int64(h.count(`SELECT id FROM series WHERE edge = $1 AND quantity = 'position'`, e))
+		if err := h.db.SetBaseline(h.ctx, halfmark.CLIActor("t"), &halfmark.Baseline{SeriesID: ls, ValueMM: &v, SigmaMM: &sd,
+			ValidFrom: time.Now().AddDate(0, 0, -40), Reason: "commissioning"}); err != nil {
+			t.Fatal(err)
+		}
+	}
 	sid := int64(h.count(`SELECT id FROM series WHERE edge = 'X2' AND beam_id = $1 AND quantity = 'position'`, bids[0]))
 	h.alerts.alerts = []halfmark.Alert{{ID: 7, MachineID: mid, BeamID: bids[0], BeamLabel: "6 MV", SeriesID: &sid, Edge: "X2", Rule: "EWMA",
 		Level: halfmark.LevelInspect, State: halfmark.AlertOpen, Message: "X2 drifting", OpenedAt: time.Now()}}
+	h.evaluate()
 	ph := h.signIn("physicist@example.org")
 	code, body, _ := ph.get(fmt.Sprintf("/machines/%d", mid))
 	must(t, code == http.StatusOK, "machine page: %d", code)

@@ -137,8 +137,7 @@ type harness struct {
 }
 
 type harnessOpts struct {
-	noStatus bool // use the dashboard's own computed status
-	shipped  bool
+	shipped bool
 	// engine wires the real drift engine: db.DB's StatusService,
 	// AlertService and service events, and the worker's shipped tolerances.
 	engine bool
@@ -160,13 +159,10 @@ func newHarness(t testing.TB, o harnessOpts) *harness {
 	log := slog.New(slog.NewTextHandler(io.Discard, nil))
 	e := api.New(api.Services{Machines: d, Checks: d, Series: d, Auth: d, Audit: d, Pinger: d, Log: log})
 	deps := web.Deps{Machines: d, Checks: d, Series: d, Users: d, Sessions: d, SignOffs: d, Raw: d,
-		Alerts: h.alerts, Audit: d, Tolerances: h.book, Log: log, Penumbra: d}
-	if !o.noStatus {
-		deps.Status = h.status
-	}
+		Alerts: h.alerts, Audit: d, Tolerances: h.book, Log: log, Penumbra: d, Findings: d, Evaluations: d}
+	deps.Status = h.status
 	if o.engine {
 		deps.Status, deps.Alerts, deps.Events, deps.Tolerances = d, d, d, tolerance.Shipped()
-		deps.Findings, deps.Evaluations = d, d
 	}
 	if err := web.Register(e, deps); err != nil {
 		t.Fatal(err)

@@ -84,7 +84,7 @@ func (s *server) seriesPage(c echo.Context, status int, form, formErr string) er
 		return s.failErr(c, err)
 	}
 	if v.EWMA != nil {
-		if d.EWMAChart, err = inlineSVG(ewmaPlot(timesOf(pts), v.EWMA, v.Centre), vg.Points(720), vg.Points(170), "EWMA chart"); err != nil {
+		if d.EWMAChart, err = inlineSVG(ewmaPlot(timesOf(pts[v.Start:]), v.EWMA, v.Centre), vg.Points(720), vg.Points(170), "EWMA chart"); err != nil {
 			return s.failErr(c, err)
 		}
 	}
