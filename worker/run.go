@@ -69,6 +69,7 @@ func (w *Worker) evaluateMachine(ctx context.Context, id int64, sum *Summary) er
 	if err != nil {
 		return fmt.Errorf("machine %d: %w", id, err)
 	}
+	w.penumbraCauses(ctx, &ev, ss)
 	if err := w.store.RecordMachineEvaluation(ctx, &ev, w.cfg.Notifier); err != nil {
 		return err
 	}

@@ -37,7 +37,10 @@ type Config struct {
 	// Notifier composes the notifications of findings that open or
 	// escalate to Level 2 or 3; the store writes them in the finding's
 	// transaction (nil: none).
-	Notifier      halfmark.FindingNotifier
+	Notifier halfmark.FindingNotifier
+	// Penumbra reads penumbra data for the likely cause of a penumbra
+	// finding (nil: no cause is given).
+	Penumbra      halfmark.PenumbraService
 	EnqueueDigest func(ctx context.Context, day time.Time, loc *time.Location) error
 	Deliver       func(ctx context.Context) (int, error)
 

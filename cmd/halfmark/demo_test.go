@@ -83,6 +83,11 @@ func TestDemoShowsTheExpectedPicture(t *testing.T) {
 		if f.Kind != halfmark.ComponentPenumbra || f.Direction != 1 {
 			t.Errorf("Avocet finding %s %s; its story is a wider penumbra only", f.Kind, f.Name)
 		}
+		// The generator grows the focal spot (σ_s 0.45 → 0.60 mm): the
+		// penumbra model must name the source.
+		if f.Cause == nil || f.Cause.Kind != "source" || !strings.Contains(f.Message, "source") {
+			t.Errorf("Avocet %s: cause %+v, message %q; want a larger source", f.Name, f.Cause, f.Message)
+		}
 	}
 	if len(byMachine["Avocet"]) == 0 {
 		t.Error("Avocet: no penumbra finding after its focal spot grew")

@@ -56,6 +56,7 @@ func (w workerFlags) build(e env, st *store, log *slog.Logger, observe func(stri
 		DeliverySpec:    "@every " + w.deliverEvery.String(),
 		Observe:         observe,
 		Notifier:        composer,
+		Penumbra:        st.DB,
 		EnqueueDigest: func(ctx context.Context, day time.Time, loc *time.Location) error {
 			return notify.EnqueueDigest(ctx, st.DB, composer, day, loc)
 		},
