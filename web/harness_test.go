@@ -157,9 +157,9 @@ func newHarness(t testing.TB, o harnessOpts) *harness {
 	t.Cleanup(d.Close)
 	h := &harness{t: t, db: d, status: &fakeStatus{}, alerts: &fakeAlerts{}, book: &book{shipped: o.shipped}, ctx: ctx}
 	log := slog.New(slog.NewTextHandler(io.Discard, nil))
-	e := api.New(api.Services{Machines: d, Checks: d, Series: d, Auth: d, Audit: d, Pinger: d, Log: log})
+	e := api.New(api.Services{Machines: d, Checks: d, Series: d, Auth: d, Audit: d, Pinger: d, Raw: d, Log: log})
 	deps := web.Deps{Machines: d, Checks: d, Series: d, Users: d, Sessions: d, SignOffs: d, Raw: d,
-		Alerts: h.alerts, Audit: d, Tolerances: h.book, Log: log}
+		Alerts: h.alerts, Audit: d, Tolerances: h.book, Verdicts: d, Log: log}
 	if !o.noStatus {
 		deps.Status = h.status
 	}

@@ -58,6 +58,7 @@ type Deps struct {
 	Events     ServiceEventLister
 	Audit      halfmark.AuditService
 	Tolerances halfmark.ToleranceBook
+	Verdicts   halfmark.VerdictService // stored evaluations; optional: without it no verdict is shown
 	Log        *slog.Logger
 	Now        func() time.Time
 
