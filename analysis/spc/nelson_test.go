@@ -145,13 +145,7 @@ func TestNelsonAllRulesOrder(t *testing.T) {
 	}
 }
 
-func TestRulesFromMask(t *testing.T) {
-	if got := RulesFromMask(0b1000_0101); !slices.Equal(got, []int{1, 3, 8}) {
-		t.Errorf("mask 0b10000101 → %v, want [1 3 8]", got)
-	}
-	if got := RulesFromMask(0xFF); len(got) != 8 {
-		t.Errorf("mask 0xFF → %v", got)
-	}
+func TestRuleDescription(t *testing.T) {
 	if RuleDescription(4) == "" || RuleDescription(9) != "" {
 		t.Error("rule descriptions")
 	}
