@@ -40,15 +40,7 @@ func newHTTPServer(h http.Handler) *httptest.Server { return httptest.NewServer(
 func newBenchEnv(t testing.TB) *env {
 	t.Helper()
 	ctx := context.Background()
-	url := dbtest.New(t)
-	if err := db.Migrate(ctx, url, nil); err != nil {
-		t.Fatal(err)
-	}
-	d, err := db.Open(ctx, url)
-	if err != nil {
-		t.Fatal(err)
-	}
-	t.Cleanup(d.Close)
+	d := dbtest.Open(t)
 	e := &env{t: t, db: d, tokens: map[halfmark.Role]string{}}
 	e.srv = newHTTPServer(api.New(api.Services{Machines: d, Checks: d, Series: d, Auth: d, Audit: d, Pinger: d, Raw: d, Metrics: api.NewMetrics(d)}))
 	t.Cleanup(e.srv.Close)
