@@ -19,7 +19,7 @@ var ErrGeometry = errors.New("analysis: invalid geometry")
 //
 //	x_iso = x · SAD / (SSD + depth)
 //
-// (similar triangles; common practice, physics.md). positionMM is in mm and
+// (similar triangles; common practice). positionMM is in mm and
 // the result is in mm; sadCm, ssdCm and depthCm are in cm. SAD and SSD must
 // be positive and depth non-negative.
 func ProjectToIsocentre(positionMM, sadCm, ssdCm, depthCm float64) (float64, error) {

@@ -14,11 +14,11 @@ func TestProjectToIsocentre(t *testing.T) {
 		name                     string
 		x, sad, ssd, depth, want float64
 	}{
-		// x_iso = x·SAD/(SSD + d) (common practice, physics.md).
+		// x_iso = x·SAD/(SSD + d) (similar triangles; common practice).
 		{"110 cm plane", 55, 100, 100, 10, 50},
 		{"isocentre plane at depth", 42.5, 100, 90, 10, 42.5},
 		{"negative position", -55, 100, 100, 10, -50},
-		// physics.md DICOM example: 0.392 mm pixels at SID 1500 mm, SAD
+		// DICOM PS3.3 C.8.8.2 (ImagePlanePixelSpacing is at the imager plane): 0.392 mm pixels at SID 1500 mm, SAD
 		// 1000 mm → 0.2613 mm at the isocentre.
 		{"EPID pixel", 0.392, 100, 150, 0, 0.2613},
 	}

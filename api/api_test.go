@@ -131,7 +131,7 @@ type storedCheck struct {
 // Projection to the isocentre plane, checked by hand: a 50% point measured
 // 55.1 mm from the axis at SSD 100 cm, depth 10 cm, SAD 100 cm lies at
 // 55.1 × 100 / (100 + 10) = 50.0909 mm in the isocentre plane
-// (magnification by SAD/(SSD + d), common practice; physics.md).
+// (magnification by SAD/(SSD + d): similar triangles, common practice).
 func TestProjectionToIsocentreMatchesHandCalculation(t *testing.T) {
 	e := newEnv(t)
 	var sc storedCheck

@@ -83,7 +83,7 @@ func TestConstantsMatchRangeDistribution(t *testing.T) {
 	}
 }
 
-// Exact moving-range constants: spc.md gives d2 = 1.128379, d3 = 0.852502,
+// Exact moving-range constants: d2 = 1.128379, d3 = 0.852502,
 // D4 = 3.2665 (seen in constants tables); they are the closed forms 2/√π and
 // sqrt(2 − 4/π) (half-normal moments) and must agree with the integral.
 func TestExactMRConstants(t *testing.T) {

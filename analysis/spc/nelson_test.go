@@ -7,7 +7,8 @@ import (
 )
 
 // Hand-built sequences for the Nelson rules (Nelson, J. Quality Technology
-// 16(4), 1984, rules as listed in spc.md), centre 0 and sigma 1 so values
+// 16(4), 1984, "The Shewhart control chart — tests for special causes";
+// rules seen in two secondary copies), centre 0 and sigma 1 so values
 // are z-scores. Each case gives the indices where the rule must fire; an
 // empty list is a near miss that must not fire. The first expected index is
 // the point that completes the pattern, so the rule must not fire one point
