@@ -2,6 +2,7 @@ package main
 
 import (
 	"context"
+	"math"
 	"strings"
 	"testing"
 
@@ -45,6 +46,37 @@ func TestDemoShowsTheExpectedPicture(t *testing.T) {
 	}
 	if m := got["Heron"]; m.Level != halfmark.LevelScheduled || m.Worst == nil || !strings.HasPrefix(m.Worst.Edge, "B2P") {
 		t.Errorf("Heron: %+v, worst %+v; want Level 2 on a bank 2 leaf", m, m.Worst)
+	}
+	// The README's Heron details, from the stored points and baselines: the
+	// bank 2 leaf ends' newest positions sit on average more than the
+	// 0.5 mm tolerance from their baselines, and some more than 1 mm.
+	if m := got["Heron"]; m.ID != 0 {
+		ss, err := d.MachineSeries(ctx, m.ID)
+		if err != nil {
+			t.Fatal(err)
+		}
+		var sum float64
+		var leaves, beyond1 int
+		for _, s := range ss {
+			if !strings.HasPrefix(s.Edge, "B2P") || s.Quantity != halfmark.QPosition || s.Baseline == nil || s.Baseline.ValueMM == nil {
+				continue
+			}
+			pts, err := d.Points(ctx, s.ID)
+			if err != nil || len(pts) == 0 {
+				t.Fatalf("points of %s: %v", s.Edge, err)
+			}
+			dev := pts[len(pts)-1].Value - *s.Baseline.ValueMM
+			sum += dev
+			leaves++
+			if math.Abs(dev) > 1 {
+				beyond1++
+			}
+		}
+		if leaves == 0 || math.Abs(sum/float64(leaves)) <= 0.5 || beyond1 == 0 {
+			t.Errorf("Heron bank 2: %d leaves, mean deviation %.2f mm, %d beyond 1 mm; the README says mean beyond 0.5 mm and some beyond 1 mm",
+				leaves, sum/math.Max(1, float64(leaves)), beyond1)
+		}
+		t.Logf("Heron bank 2: %d leaves, mean deviation %+.2f mm, %d beyond 1 mm", leaves, sum/float64(max(leaves, 1)), beyond1)
 	}
 	// (The history ends on a fixed day, so the morning checks may count as
 	// overdue today; the level is what matters.)
