@@ -16,8 +16,7 @@ export PATH="/usr/local/go/bin:$PATH"
 KNOWN=(
   # api/bench_test.go: the ingest benchmark's baseline is a raw COPY.
   "halfmark/api -> github.com/jackc/pgx/v5"
-  # cmd/halfmark/workerwiring.go builds the outbox hook on db's pgx.Tx;
-  # cmd/halfmark/main_test.go counts rows with pgx.
+  # cmd/halfmark/workerwiring.go builds the outbox hook on db's pgx.Tx.
   "halfmark/cmd/halfmark -> github.com/jackc/pgx/v5"
   # db/checks.go projects positions to the isocentre plane (domain work).
   "halfmark/db -> halfmark/analysis"
