@@ -32,7 +32,7 @@ func (e *env) post(path, ctype string, body []byte) (int, []byte) {
 }
 
 // Error-function edges at ±50 mm with σ = 2 mm: field size 100 mm and
-// 80–20 penumbra 1.6832·σ (physics.md, derived).
+// 80–20 penumbra 1.6832·σ (derived: 2·Φ⁻¹(0.8) = 1.6832).
 func TestAnalyzeProfileEndpoint(t *testing.T) {
 	e := newEnv(t)
 	var b strings.Builder

@@ -62,6 +62,7 @@ type Deps struct {
 	// the pages say it is not available).
 	Findings    halfmark.FindingService
 	Evaluations halfmark.EvaluationService
+	Verdicts    halfmark.VerdictService // stored evaluations; optional: without it no verdict is shown
 	Log         *slog.Logger
 	Now         func() time.Time
 

@@ -36,7 +36,7 @@ func cmdAnalyze(ctx context.Context, e env) error {
 	what := e.args[0]
 	e.args = e.args[1:]
 	fs := newFlags(e, "analyze "+what, "analyze "+what+" [flags] FILE")
-	fs.Usage = func() { fmt.Fprintln(e.stdout, analyzeUsage) }
+	fs.Usage = func() { printUsage(e.stdout, fs, analyzeUsage) }
 	asJSON := fs.Bool("json", false, "print the result as JSON")
 	var pp rawdata.ProfileParams
 	var ip rawdata.ImageParams

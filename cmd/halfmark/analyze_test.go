@@ -42,7 +42,7 @@ func erfProfile(t *testing.T, half, sigma, step float64) string {
 
 // The JSON keys scripts rely on, checked against an error-function edge:
 // 50% point at the geometric edge, 80–20 = 2·Φ⁻¹(0.8)·σ = 1.6832·σ
-// (physics.md, derived).
+// (derived).
 func TestAnalyzeProfileJSON(t *testing.T) {
 	p := erfProfile(t, 50, 2, 0.5)
 	code, out, stderr := runPlain(t, "analyze", "profile", "--json", p)

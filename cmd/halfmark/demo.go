@@ -2,7 +2,6 @@ package main
 
 import (
 	"context"
-	"flag"
 	"fmt"
 	"sort"
 	"time"
@@ -22,13 +21,12 @@ func cmdDemo(ctx context.Context, e env) error {
 	fs := f.register(e, "demo")
 	end := fs.String("end", "", "last day of the demo history, YYYY-MM-DD (default: today, up to the present hour)")
 	loadOnly := fs.Bool("load-only", false, "load and evaluate the demo, print the picture, and exit without serving")
+	// The demo's own default, shown as such by --help.
+	dir := fs.Lookup("data-dir")
+	dir.DefValue = demoDataDir
+	_ = dir.Value.Set(demoDataDir)
 	if err := parseFlags(fs, e); err != nil {
 		return err
-	}
-	dirSet := e.getenv("HALFMARK_DATA_DIR") != ""
-	fs.Visit(func(fl *flag.Flag) { dirSet = dirSet || fl.Name == "data-dir" })
-	if !dirSet {
-		f.db.dataDir = demoDataDir
 	}
 	endDay := time.Now().UTC()
 	if *end != "" {

@@ -96,6 +96,37 @@ func TestDemoShowsTheExpectedPicture(t *testing.T) {
 	if err != nil {
 		t.Fatal(err)
 	}
+	// The README's Heron details, from the stored points and baselines: the
+	// bank 2 leaf ends' newest positions sit on average more than the
+	// 0.5 mm tolerance from their baselines, and some more than 1 mm.
+	if hid := machineID(status, "Heron"); hid != 0 {
+		ss, err := d.MachineSeries(ctx, hid)
+		if err != nil {
+			t.Fatal(err)
+		}
+		var sum float64
+		var leaves, beyond1 int
+		for _, s := range ss {
+			if !strings.HasPrefix(s.Edge, "B2P") || s.Quantity != halfmark.QPosition || s.Baseline == nil || s.Baseline.ValueMM == nil {
+				continue
+			}
+			pts, err := d.Points(ctx, s.ID)
+			if err != nil || len(pts) == 0 {
+				t.Fatalf("points of %s: %v", s.Edge, err)
+			}
+			dev := pts[len(pts)-1].Value - *s.Baseline.ValueMM
+			sum += dev
+			leaves++
+			if math.Abs(dev) > 1 {
+				beyond1++
+			}
+		}
+		if leaves == 0 || math.Abs(sum/float64(leaves)) <= 0.5 || beyond1 == 0 {
+			t.Errorf("Heron bank 2: %d leaves, mean deviation %.2f mm, %d beyond 1 mm; the README says mean beyond 0.5 mm and some beyond 1 mm",
+				leaves, sum/math.Max(1, float64(leaves)), beyond1)
+		}
+		t.Logf("Heron bank 2: %d leaves, mean deviation %+.2f mm, %d beyond 1 mm", leaves, sum/float64(max(leaves, 1)), beyond1)
+	}
 	if status[0].Name != "Heron" || status[len(status)-1].Name != "Plover" {
 		t.Errorf("front-page order %v", status)
 	}
@@ -229,4 +260,13 @@ func oneJudge(t *testing.T, ctx context.Context, d *db.DB) {
 		}
 		t.Error(s)
 	}
+}
+
+func machineID(st []halfmark.MachineStatus, name string) int64 {
+	for _, m := range st {
+		if m.Name == name {
+			return m.ID
+		}
+	}
+	return 0
 }
