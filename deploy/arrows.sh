@@ -16,19 +16,10 @@ export PATH="/usr/local/go/bin:$PATH"
 KNOWN=(
   # api/bench_test.go: the ingest benchmark's baseline is a raw COPY.
   "halfmark/api -> github.com/jackc/pgx/v5"
-  # cmd/halfmark/workerwiring.go builds the outbox hook on db's pgx.Tx.
-  "halfmark/cmd/halfmark -> github.com/jackc/pgx/v5"
   # db/checks.go projects positions to the isocentre plane (domain work).
   "halfmark/db -> halfmark/analysis"
   # web/session.go calls api.SetActor; web/harness_test.go mounts the API.
   "halfmark/web -> halfmark/api"
-  # worker/e2e_test.go reads the outbox with pgx.
-  "halfmark/worker -> github.com/jackc/pgx/v5"
-  # worker reaches the embedded example tolerance book in deploy.
-  "halfmark/worker -> halfmark/deploy"
-  # worker/notify writes the outbox with its own SQL on db's transaction.
-  "halfmark/worker/notify -> github.com/jackc/pgx/v5"
-  "halfmark/worker/notify -> github.com/jackc/pgx/v5/pgxpool"
 )
 
 violations=$(go list -f '{{.ImportPath}}|{{join .Imports " "}} {{join .TestImports " "}} {{join .XTestImports " "}}' ./... |
