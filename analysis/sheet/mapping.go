@@ -97,11 +97,15 @@ func ParseMapping(data []byte) (*Mapping, error) {
 	if err != nil {
 		return nil, fmt.Errorf("the mapping is not valid TOML: %v", err)
 	}
-	if u := md.Undecoded(); len(u) > 0 {
-		keys := make([]string, len(u))
-		for i, k := range u {
-			keys[i] = k.String()
+	var keys []string
+	for _, k := range md.Undecoded() {
+		// Tables decoded into maps of any report their inner keys too.
+		if len(k) > 1 && (k[0] == "columns" || k[0] == "constants" || k[0] == "sheet") {
+			continue
 		}
+		keys = append(keys, k.String())
+	}
+	if len(keys) > 0 {
 		return nil, fmt.Errorf("the mapping has unknown key(s) %s; known: layout, header_row, separator, encoding, decimal, date_format, timezone, units, sheets, [columns], [constants], [beams], [sheet.NAME]", strings.Join(keys, ", "))
 	}
 	m := &Mapping{Layout: strings.ToLower(f.Layout), HeaderRow: f.HeaderRow, Encoding: strings.ToLower(f.Encoding),

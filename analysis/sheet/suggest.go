@@ -23,7 +23,7 @@ func Suggest(data []byte) (string, error) {
 	var sep rune
 	var sheets []string
 	if bytes.HasPrefix(data, []byte("PK\x03\x04")) {
-		f, err := excelize.OpenReader(bytes.NewReader(data))
+		f, err := excelize.OpenReader(bytes.NewReader(data), xlsxLimits)
 		if err != nil {
 			return "", fmt.Errorf("the file cannot be opened as an XLSX workbook: %v", err)
 		}
@@ -75,14 +75,14 @@ var fieldWords = []struct {
 	{"time", []string{"time", "zeit", "uhrzeit"}},
 	{"machine", []string{"machine", "linac", "unit", "gerät", "accelerator", "treatment unit"}},
 	{"beam", []string{"beam", "energy", "energie", "mv"}},
-	{"kind", []string{"kind", "type", "check type", "qa type"}},
+	{"kind", []string{"kind", "type", "check type", "qa type", "qa"}},
 	{"operator", []string{"operator", "by", "initials", "physicist", "therapist", "user", "name"}},
 	{"device", []string{"device", "detector", "method"}},
 	{"note", []string{"note", "notes", "comment", "comments", "remarks", "bemerkung"}},
 	{"ssd_cm", []string{"ssd", "ssd_cm", "ssd (cm)"}},
 	{"depth_cm", []string{"depth", "depth_cm", "depth (cm)"}},
-	{"field_x_cm", []string{"field x", "field_x_cm", "fs x"}},
-	{"field_y_cm", []string{"field y", "field_y_cm", "fs y"}},
+	{"field_x_cm", []string{"field x", "field_x_cm", "nominal field x"}},
+	{"field_y_cm", []string{"field y", "field_y_cm", "nominal field y"}},
 	{"gantry_deg", []string{"gantry", "gantry_deg"}},
 	{"collimator_deg", []string{"collimator", "collimator_deg", "coll"}},
 	{"edge", []string{"edge"}},

@@ -8,6 +8,10 @@ import (
 	"github.com/xuri/excelize/v2"
 )
 
+// xlsxLimits bound what a workbook may unpack to (256 MiB in all, 64 MiB
+// per worksheet), so an upload cannot exhaust memory.
+var xlsxLimits = excelize.Options{UnzipSizeLimit: 256 << 20, UnzipXMLSizeLimit: 64 << 20}
+
 // readXLSX reads every sheet of a workbook, or the ones the options or
 // the mapping name. Cells are read raw: numbers as stored (dates as
 // serial numbers), so the decimal mark is the point, or a lone comma in a
@@ -15,7 +19,7 @@ import (
 // refused as a whole when the sheets were not named, and fails the import
 // when they were.
 func readXLSX(data []byte, m *Mapping, opt Options) (*Result, error) {
-	f, err := excelize.OpenReader(bytes.NewReader(data))
+	f, err := excelize.OpenReader(bytes.NewReader(data), xlsxLimits)
 	if err != nil {
 		return nil, fmt.Errorf("the file starts like an XLSX workbook but cannot be opened as one: %v", err)
 	}
