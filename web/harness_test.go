@@ -159,7 +159,7 @@ func newHarness(t testing.TB, o harnessOpts) *harness {
 	log := slog.New(slog.NewTextHandler(io.Discard, nil))
 	e := api.New(api.Services{Machines: d, Checks: d, Series: d, Auth: d, Audit: d, Pinger: d, Log: log})
 	deps := web.Deps{Machines: d, Checks: d, Series: d, Users: d, Sessions: d, SignOffs: d, Raw: d,
-		Alerts: h.alerts, Audit: d, Tolerances: h.book, Log: log}
+		Alerts: h.alerts, Audit: d, Import: d, Export: d, Tolerances: h.book, Log: log}
 	if !o.noStatus {
 		deps.Status = h.status
 	}

@@ -124,7 +124,7 @@ func newHandler(d *db.DB, wk *worker.Worker, log *slog.Logger, metrics *api.Metr
 	h := api.New(api.Services{Machines: d, Checks: d, Series: d, Auth: d, Audit: d, Pinger: d, Log: log,
 		Alerts: d, Status: d, Events: d, Charts: wk, Raw: d, Metrics: metrics})
 	err := web.Register(h, web.Deps{Machines: d, Checks: d, Series: d, Users: d, Sessions: d, SignOffs: d,
-		Raw: d, Status: d, Alerts: d, Events: d, Audit: d, Tolerances: liveBook{wk}, Log: log})
+		Raw: d, Status: d, Alerts: d, Events: d, Audit: d, Import: d, Export: d, Tolerances: liveBook{wk}, Log: log})
 	return h, err
 }
 
