@@ -3,6 +3,7 @@ package sheet
 import (
 	"bytes"
 	"math"
+	"os"
 	"strings"
 	"testing"
 	"time"
@@ -515,5 +516,24 @@ func TestExportReadsBack(t *testing.T) {
 				t.Errorf("%s: edge %+v, want %+v", name, e, w)
 			}
 		}
+	}
+}
+
+// The shipped example mapping reads the shipped example log.
+func TestShippedExampleMapping(t *testing.T) {
+	mb, err := os.ReadFile("../../deploy/examples/wide-log.toml")
+	if err != nil {
+		t.Fatal(err)
+	}
+	data, err := os.ReadFile("../../deploy/examples/wide-log.csv")
+	if err != nil {
+		t.Fatal(err)
+	}
+	res := read(t, data, mustMapping(t, string(mb)), Options{})
+	if len(res.Refused) != 0 || len(res.Rows) != 2 {
+		t.Fatalf("rows %d refused %v", len(res.Rows), res.Refused)
+	}
+	if r := res.Rows[1]; r.Beam != "6 MV FFF" || r.Check.Note != "nach Service" || !near(*edge(t, r.Check, "X2").PenumbraMM, 2.7) {
+		t.Errorf("second row %+v", r)
 	}
 }
