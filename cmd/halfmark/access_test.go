@@ -114,7 +114,8 @@ func TestAccessControlMatrix(t *testing.T) {
 		"POST /machines/:id/report/sign": "physicist", "GET /series/:id": "therapist", "POST /series/:id/baseline": "physicist",
 		"POST /series/:id/period": "physicist", "POST /alerts/:id/acknowledge": "physicist", "POST /alerts/:id/resolve": "physicist",
 		"GET /entry": "therapist", "POST /entry": "therapist", "GET /monthly": "therapist", "POST /monthly/analyze": "therapist",
-		"POST /monthly/save": "therapist", "GET /raw/:id": "therapist", "GET /metrics": "",
+		"POST /monthly/save": "therapist", "GET /raw/:id": "therapist",
+		"GET /import": "therapist", "POST /import/preview": "physicist", "POST /import/store": "physicist", "GET /export": "therapist", "GET /metrics": "",
 	}
 	ids := strings.NewReplacer(":id", "", "*", "halfmark.css")
 	pathFor := func(route string) string {
