@@ -76,7 +76,7 @@ var fieldWords = []struct {
 	{"machine", []string{"machine", "linac", "unit", "gerät", "accelerator", "treatment unit"}},
 	{"beam", []string{"beam", "energy", "energie", "mv"}},
 	{"kind", []string{"kind", "type", "check type", "qa type", "qa"}},
-	{"operator", []string{"operator", "by", "initials", "physicist", "therapist", "user", "name"}},
+	{"operator", []string{"operator", "by", "initials", "kürzel", "physicist", "therapist", "user", "name"}},
 	{"device", []string{"device", "detector", "method"}},
 	{"note", []string{"note", "notes", "comment", "comments", "remarks", "bemerkung"}},
 	{"ssd_cm", []string{"ssd", "ssd_cm", "ssd (cm)"}},
