@@ -85,7 +85,8 @@ func (d *DB) Check(ctx context.Context, id string) (halfmark.StoredCheck, error)
 	return out, mapErr(rows.Err())
 }
 
-// Checks implements halfmark.CheckService.
+// Checks implements halfmark.CheckService; each check carries its stored
+// edge results.
 func (d *DB) Checks(ctx context.Context, f halfmark.CheckFilter) ([]halfmark.Check, error) {
 	if f.Limit <= 0 || f.Limit > 5000 {
 		f.Limit = 500
@@ -99,5 +100,16 @@ func (d *DB) Checks(ctx context.Context, f halfmark.CheckFilter) ([]halfmark.Che
 		return nil, mapErr(err)
 	}
 	out, err := pgx.CollectRows(rows, func(r pgx.CollectableRow) (halfmark.Check, error) { return scanCheck(r) })
-	return out, mapErr(err)
+	if err != nil {
+		return nil, mapErr(err)
+	}
+	ids := make([]string, len(out))
+	for i := range out {
+		ids[i] = out[i].ID
+	}
+	edges, err := d.checkEdges(ctx, ids)
+	for i := range out {
+		out[i].Edges = edges[out[i].ID]
+	}
+	return out, err
 }

@@ -9,6 +9,7 @@ trap 'rm -f "$out"' EXIT
 run() { echo "bench: $*" >&2; go test -run '^$' "$@" | tee -a "$out" >&2; }
 
 run -bench '^BenchmarkIngest10kVsCopy$' -benchtime 5x ./api
+run -bench '^BenchmarkImportWideVsLong$' -benchtime 1x -timeout 30m ./cmd/halfmark
 run -bench '^BenchmarkEvaluation$' -benchtime 1x ./worker
 run -bench '^BenchmarkFrontPageVsStatic$' -benchtime 1x ./web
 run -bench '^Benchmark(Analyze400|SinglePass400)$' -benchtime 20000x ./analysis/profile
@@ -23,6 +24,7 @@ secs() { awk -v a="$1" 'BEGIN { if (a == "") print "n/a"; else printf "%.1f", a 
 
 printf '\n%-58s %12s %10s\n' "measure (same-run baseline)" "result" "target"
 printf '%-58s %12s %10s\n' "ingest 10,000 edge results: API speed / raw pgx COPY, same data" "$(metric BenchmarkIngest10kVsCopy- api_vs_copy)" "≥ 0.5"
+printf '%-58s %12s %10s\n' "import 100,000 wide rows / the same 400,000 long rows" "$(metric BenchmarkImportWideVsLong- wide/long)" "≤ 2"
 printf '%-58s %12s %10s\n' "full evaluation 2,000×500: evaluate time / read time" "$(metric BenchmarkEvaluation/read eval/read)" "≤ 2"
 # The ratio alone improves when the read gets slower: the whole job's time
 # (read, evaluate, store verdicts and alerts) is printed beside it.

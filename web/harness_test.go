@@ -151,7 +151,7 @@ func newHarness(t testing.TB, o harnessOpts) *harness {
 	log := slog.New(slog.NewTextHandler(io.Discard, nil))
 	e := api.New(api.Services{Machines: d, Checks: d, Series: d, Auth: d, Audit: d, Pinger: d, Raw: d, Log: log})
 	deps := web.Deps{Machines: d, Checks: d, Series: d, Users: d, Sessions: d, SignOffs: d, Raw: d,
-		Alerts: h.alerts, Audit: d, Tolerances: h.book, Log: log, Penumbra: d, Findings: d, Evaluations: d, Verdicts: d}
+		Alerts: h.alerts, Audit: d, Tolerances: h.book, Log: log, Penumbra: d, Findings: d, Evaluations: d, Verdicts: d, Import: d, Export: d}
 	deps.Status = h.status
 	if o.engine {
 		deps.Status, deps.Alerts, deps.Events, deps.Tolerances = d, d, d, tolerance.Shipped()

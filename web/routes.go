@@ -68,6 +68,10 @@ func (s *server) routes(e *echo.Echo) error {
 	g.POST("/monthly/analyze", s.monthlyAnalyze, ther)
 	g.POST("/monthly/save", s.monthlySave, ther)
 	g.GET("/raw/:id", s.rawDownload, ther)
+	g.GET("/import", s.importPage, ther)
+	g.POST("/import/preview", s.importPreview, phys)
+	g.POST("/import/store", s.importStore, phys)
+	g.GET("/export", s.exportDownload, ther)
 	return nil
 }
 

@@ -57,6 +57,8 @@ type Deps struct {
 	Alerts     halfmark.AlertService
 	Events     ServiceEventLister
 	Audit      halfmark.AuditService
+	Import     Importer // may be nil: the import page says so
+	Export     Exporter // may be nil: the download says so
 	Tolerances halfmark.ToleranceBook
 	// Findings and Evaluations read what the drift engine decided (nil:
 	// the pages say it is not available).

@@ -119,6 +119,7 @@ func TestAccessControlMatrix(t *testing.T) {
 		"POST /monthly/save": "therapist", "GET /raw/:id": "therapist", "GET /metrics": "",
 		"PATCH /api/v1/machines/:id": "admin", "GET /api/v1/beams/:id/penumbra-model": "therapist",
 		"POST /api/v1/beams/:id/penumbra-model/predict": "therapist", "GET /machines/:id/beams/:beam": "therapist",
+		"GET /import": "therapist", "POST /import/preview": "physicist", "POST /import/store": "physicist", "GET /export": "therapist",
 	}
 	ids := strings.NewReplacer(":id", "", "*", "halfmark.css")
 	pathFor := func(route string) string {

@@ -5,17 +5,23 @@ import (
 	"fmt"
 	"io"
 	"os"
+	"strings"
 	"time"
 
 	"halfmark"
+	"halfmark/analysis/sheet"
 )
 
-// importBatch is how many checks one transaction stores.
-const importBatch = 1000
+// previewChecks is how many checks a dry run prints as they will be stored.
+const previewChecks = 5
 
 func cmdImport(ctx context.Context, e env) error {
+	if len(e.args) > 0 && e.args[0] == "suggest" {
+		e.args = e.args[1:]
+		return cmdImportSuggest(e)
+	}
 	if len(e.args) == 0 || e.args[0] != "checks" {
-		fmt.Fprintln(e.stdout, "Usage: halfmark import checks [--skip-bad] [--create-missing] [--dry-run] FILE.csv\n\nThe CSV layout is in the README (\"Importing records\").")
+		fmt.Fprintln(e.stdout, "Usage: halfmark import checks [--map FILE.toml] [--skip-bad] [--create-missing] [--dry-run] FILE\n       halfmark import suggest FILE > mapping.toml\n\nFILE is CSV/TSV text or an XLSX workbook; the layouts and the mapping file are in the README (\"Importing records\").")
 		if len(e.args) > 0 && (e.args[0] == "--help" || e.args[0] == "-h") {
 			return errHelp
 		}
@@ -24,35 +30,63 @@ func cmdImport(ctx context.Context, e env) error {
 	e.args = e.args[1:]
 	var d dbFlags
 	var skipBad, createMissing, dryRun bool
-	var operator string
-	fs := newFlags(e, "import checks", "import checks [flags] FILE.csv")
+	var operator, mapFile, decimal, dateFormat, timezone, sheets string
+	fs := newFlags(e, "import checks", "import checks [flags] FILE")
 	d.register(fs)
 	fs.BoolVar(&skipBad, "skip-bad", false, "store the good rows and list the bad ones (default: store nothing if any row is bad)")
 	fs.BoolVar(&createMissing, "create-missing", false, "create machines (SAD 100 cm) and beams named in the file that do not exist yet")
-	fs.BoolVar(&dryRun, "dry-run", false, "validate only; store nothing")
+	fs.BoolVar(&dryRun, "dry-run", false, "validate and preview only; store nothing")
 	fs.StringVar(&operator, "as", "import", "name recorded in the audit log as the importer")
+	fs.StringVar(&mapFile, "map", "", "mapping file (TOML) saying which column holds what; without it the file must be in Halfmark's long layout")
+	fs.StringVar(&decimal, "decimal", "", "decimal mark: comma, point or auto (default: the mapping's, else auto)")
+	fs.StringVar(&dateFormat, "date-format", "", "how to read slash dates: DD/MM/YYYY or MM/DD/YYYY (never guessed)")
+	fs.StringVar(&timezone, "timezone", "", "zone of times written without one (IANA name or Local; default: the mapping's, else the site's local zone with --map, UTC without)")
+	fs.StringVar(&sheets, "sheet", "", "XLSX: read only these sheets (comma-separated; default: all, or the mapping's)")
 	if err := parseFlags(fs, e); err != nil {
 		return err
 	}
 	if fs.NArg() != 1 {
-		return exitUsage{fmt.Errorf("give one CSV file (or - for standard input)")}
+		return exitUsage{fmt.Errorf("give one file (CSV, TSV or XLSX; - for standard input)")}
 	}
-	var in io.Reader = e.stdin
-	var size int64
-	if name := fs.Arg(0); name != "-" {
-		f, err := os.Open(name)
+	m := sheet.DefaultMapping()
+	opt := sheet.Options{Decimal: strings.ToLower(decimal), DateFormat: strings.ToUpper(dateFormat), Now: time.Now()}
+	if mapFile != "" {
+		b, err := os.ReadFile(mapFile)
 		if err != nil {
 			return err
 		}
-		defer f.Close()
-		if st, err := f.Stat(); err == nil {
-			size = st.Size()
+		if m, err = sheet.ParseMapping(b); err != nil {
+			return exitUsage{fmt.Errorf("%s: %v", mapFile, err)}
 		}
-		in = f
+		if m.Timezone == "" {
+			opt.Location = time.Local
+		}
 	}
-	pr := &progressReader{r: in, total: size, w: e.stderr, label: "reading"}
-	rows, bad, err := halfmark.ReadChecksCSV(pr, time.Now())
-	pr.done()
+	switch opt.Decimal {
+	case "", sheet.DecimalAuto, sheet.DecimalComma, sheet.DecimalPoint:
+	default:
+		return exitUsage{fmt.Errorf("--decimal %s: use comma, point or auto", decimal)}
+	}
+	switch opt.DateFormat {
+	case "", sheet.DateDMY, sheet.DateMDY:
+	default:
+		return exitUsage{fmt.Errorf("--date-format %s: use DD/MM/YYYY or MM/DD/YYYY", dateFormat)}
+	}
+	if timezone != "" {
+		loc, err := time.LoadLocation(timezone)
+		if err != nil {
+			return exitUsage{fmt.Errorf("--timezone %s: not an IANA time zone such as Europe/Berlin", timezone)}
+		}
+		opt.Location = loc
+	}
+	if sheets != "" {
+		opt.Sheets = strings.Split(sheets, ",")
+	}
+	data, err := readImportFile(e, fs.Arg(0))
+	if err != nil {
+		return err
+	}
+	res, err := sheet.Read(data, m, opt)
 	if err != nil {
 		return err
 	}
@@ -62,104 +96,99 @@ func cmdImport(ctx context.Context, e env) error {
 	}
 	defer st.Close()
 	actor := halfmark.Actor{Name: "cli:" + operator, Role: halfmark.RoleAdmin}
-	res := resolver{ctx: ctx, st: st, actor: actor, create: createMissing && !dryRun}
-	nRows := len(rows) + len(bad)
-	checks, lines, bad2 := halfmark.GroupCSVRows(rows, res.resolve)
-	bad = append(bad, bad2...)
-	// Validate the grouped checks against the store (projection, beams).
-	if err := st.Prepare(ctx, checks, "checks"); err != nil {
-		if he, ok := err.(*halfmark.Error); ok && he.Code == halfmark.EInvalid {
-			bad = append(bad, mapCheckErrors(he.Fields, lines)...)
-			checks, lines = dropBad(checks, lines, he.Fields)
-		} else {
-			return err
-		}
+	start := time.Now()
+	rep, err := st.ImportChecks(ctx, actor, res, sheet.ImportOptions{CreateMissing: createMissing, DryRun: dryRun, SkipBad: skipBad,
+		Progress: func(done, total int) {
+			fmt.Fprintf(e.stderr, "\rstoring: %d/%d checks (%.0f%%)", done, total, 100*float64(done)/float64(total))
+			if done == total {
+				fmt.Fprintln(e.stderr)
+			}
+		}})
+	if err != nil {
+		return err
 	}
-	sortByLine(bad)
-	fmt.Fprintf(e.stderr, "%d rows read: %d bad; %d checks to store\n", nRows, len(bad), len(checks))
-	if len(bad) > 0 {
-		for _, b := range bad {
-			fmt.Fprintf(e.stdout, "bad row: %s\n", b.String())
-		}
-		if !skipBad {
-			return fmt.Errorf("%d bad row(s); nothing was stored. Fix them, or use --skip-bad to store the good rows", len(bad))
-		}
+	fmt.Fprintf(e.stderr, "%d rows read: %d bad; %d checks to store\n", rep.Read, len(rep.Refused), len(rep.Checks))
+	if dryRun {
+		printPreview(e.stdout, res, rep)
+	}
+	for _, b := range rep.Refused {
+		fmt.Fprintf(e.stdout, "bad row: %s\n", b)
+	}
+	if len(rep.Refused) > 0 && !skipBad {
+		return fmt.Errorf("%d bad row(s); nothing was stored. Fix them, or use --skip-bad to store the good rows", len(rep.Refused))
 	}
 	if dryRun {
-		fmt.Fprintf(e.stdout, "dry run: %d checks would be stored\n", len(checks))
+		fmt.Fprintf(e.stdout, "dry run: %d checks would be stored\n", len(rep.Checks))
 		return nil
 	}
-	created, existing := 0, 0
-	start := time.Now()
-	for i := 0; i < len(checks); i += importBatch {
-		j := min(i+importBatch, len(checks))
-		r, err := st.RecordBatch(ctx, actor, checks[i:j])
-		if err != nil {
-			return fmt.Errorf("storing checks %d–%d (file lines %d–%d): %w; the %d checks before them are stored; a re-run stores only what is missing",
-				i+1, j, lines[i][0], lines[j-1][len(lines[j-1])-1], err, i)
-		}
-		created += r.Created
-		existing += r.Existing
-		fmt.Fprintf(e.stderr, "\rstoring: %d/%d checks (%.0f%%)", j, len(checks), 100*float64(j)/float64(len(checks)))
-	}
-	if len(checks) > 0 {
-		fmt.Fprintln(e.stderr)
-	}
 	fmt.Fprintf(e.stdout, "imported: %d new checks, %d already stored, %d bad rows skipped (%.1f s)\n",
-		created, existing, len(bad), time.Since(start).Seconds())
+		rep.Created, rep.Existing, len(rep.Refused), time.Since(start).Seconds())
 	return nil
 }
 
-// resolver maps machine names and beam labels to ids, creating them when
-// allowed.
-type resolver struct {
-	ctx    context.Context
-	st     *store
-	actor  halfmark.Actor
-	create bool
-	cache  map[string][2]int64
+// readImportFile reads the named file (or standard input for "-") with
+// progress on stderr.
+func readImportFile(e env, name string) ([]byte, error) {
+	var in io.Reader = e.stdin
+	var size int64
+	if name != "-" {
+		f, err := os.Open(name)
+		if err != nil {
+			return nil, err
+		}
+		defer f.Close()
+		if st, err := f.Stat(); err == nil {
+			size = st.Size()
+		}
+		in = f
+	}
+	pr := &progressReader{r: in, total: size, w: e.stderr, label: "reading"}
+	data, err := io.ReadAll(pr)
+	pr.done()
+	return data, err
 }
 
-func (r *resolver) resolve(machine, beam string) (int64, int64, error) {
-	if r.cache == nil {
-		r.cache = map[string][2]int64{}
+// printPreview shows what a dry run would store: how the file was read,
+// the first checks as stored, the counts per machine, beam and kind, the
+// date range and what would be created.
+func printPreview(w io.Writer, res *sheet.Result, rep *sheet.ImportReport) {
+	switch res.Format {
+	case "xlsx":
+		fmt.Fprintf(w, "read: XLSX workbook, sheets %s\n", strings.Join(res.Sheets, ", "))
+	default:
+		sep := map[rune]string{',': "comma", ';': "semicolon", '\t': "tab"}[res.Separator]
+		fmt.Fprintf(w, "read: text, separator %s, decimal %s\n", sep, res.Decimal)
 	}
-	energy, fff, err := halfmark.ParseBeamLabel(beam)
-	if err != nil {
-		return 0, 0, err
-	}
-	key := machine + "\x00" + halfmark.BeamLabel(energy, fff)
-	if v, ok := r.cache[key]; ok {
-		return v[0], v[1], nil
-	}
-	m, err := r.st.MachineByName(r.ctx, machine)
-	if halfmark.ErrorCodeOf(err) == halfmark.ENotFound && r.create {
-		m = halfmark.Machine{Name: machine, SADcm: 100, Clinical: true}
-		err = r.st.CreateMachine(r.ctx, r.actor, &m)
-	}
-	if err != nil {
-		if halfmark.ErrorCodeOf(err) == halfmark.ENotFound {
-			return 0, 0, fmt.Errorf("machine %q does not exist; create it first (POST /api/v1/machines) or use --create-missing", machine)
+	fmt.Fprintf(w, "first checks as they will be stored:\n")
+	for i, c := range rep.Checks {
+		if i == previewChecks {
+			break
 		}
-		return 0, 0, err
-	}
-	bs, err := r.st.Beams(r.ctx, m.ID)
-	if err != nil {
-		return 0, 0, err
-	}
-	for _, b := range bs {
-		if b.EnergyMV == energy && b.FFF == fff {
-			r.cache[key] = [2]int64{m.ID, b.ID}
-			return m.ID, b.ID, nil
+		fmt.Fprintf(w, "  %s | %s | %s | %s | %s", rep.Machines[c.MachineID], rep.Beams[c.BeamID], c.Kind,
+			c.MeasuredAt.Format(time.RFC3339), c.Setup.Geometry())
+		if c.Device != "" || c.Operator != "" {
+			fmt.Fprintf(w, " | %s %s", c.Device, c.Operator)
 		}
+		for _, e := range c.Edges {
+			fmt.Fprintf(w, " | %s %g mm", e.Edge, e.PositionMM)
+			if e.PenumbraMM != nil {
+				fmt.Fprintf(w, " pen %g mm", *e.PenumbraMM)
+			}
+			if e.LightPositionMM != nil {
+				fmt.Fprintf(w, " light %g mm", *e.LightPositionMM)
+			}
+		}
+		fmt.Fprintln(w)
 	}
-	if !r.create {
-		return 0, 0, fmt.Errorf("machine %q has no %s beam; add it first or use --create-missing", machine, halfmark.BeamLabel(energy, fff))
+	fmt.Fprintln(w, "checks per machine, beam and kind:")
+	for _, c := range rep.Counts() {
+		fmt.Fprintf(w, "  %s | %s | %s: %d checks, %d edge results\n", c.Machine, c.Beam, c.Kind, c.Checks, c.Edges)
 	}
-	b := halfmark.Beam{MachineID: m.ID, EnergyMV: energy, FFF: fff}
-	if err := r.st.CreateBeam(r.ctx, r.actor, &b); err != nil {
-		return 0, 0, err
+	if len(rep.Checks) > 0 {
+		first, last := rep.Span()
+		fmt.Fprintf(w, "date range: %s to %s\n", first.Format(time.RFC3339), last.Format(time.RFC3339))
 	}
-	r.cache[key] = [2]int64{m.ID, b.ID}
-	return m.ID, b.ID, nil
+	for _, c := range rep.Create {
+		fmt.Fprintf(w, "would create: %s\n", c)
+	}
 }

@@ -124,7 +124,7 @@ func newHandler(d *db.DB, wk *worker.Worker, log *slog.Logger, metrics *api.Metr
 	h := api.New(api.Services{Machines: d, Checks: d, Series: d, Auth: d, Audit: d, Pinger: d, Log: log,
 		Alerts: d, Status: d, Events: d, Findings: d, Evaluations: d, Raw: d, Metrics: metrics, Penumbra: d})
 	err := web.Register(h, web.Deps{Machines: d, Checks: d, Series: d, Users: d, Sessions: d, SignOffs: d,
-		Raw: d, Status: d, Alerts: d, Events: d, Audit: d, Tolerances: liveBook{wk}, Log: log, Penumbra: d,
+		Raw: d, Status: d, Alerts: d, Events: d, Audit: d, Tolerances: liveBook{wk}, Log: log, Penumbra: d, Import: d, Export: d,
 		Findings: d, Evaluations: d})
 	return h, err
 }
