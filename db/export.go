@@ -23,9 +23,9 @@ var exportSQL = `SELECT ` + checkCols + `, m.name, b.energy_mv, b.fff,
 		AS (edge text, position_mm float8, iso_position_mm float8, penumbra_mm float8, light_position_mm float8,
 			iso_light_position_mm float8)) WITH ORDINALITY
 		AS er(edge, position_mm, iso_position_mm, penumbra_mm, light_position_mm, iso_light_position_mm, n)
-	LEFT JOIN series sp ON sp.machine_id = c.machine_id AND sp.beam_id = c.beam_id AND sp.geometry = c.geometry
+	LEFT JOIN series sp ON sp.machine_id = c.machine_id AND sp.beam_id = c.beam_id AND sp.geometry = c.geometry AND sp.method = c.method
 		AND sp.edge = er.edge AND sp.quantity = 'position'
-	LEFT JOIN series sn ON sn.machine_id = c.machine_id AND sn.beam_id = c.beam_id AND sn.geometry = c.geometry
+	LEFT JOIN series sn ON sn.machine_id = c.machine_id AND sn.beam_id = c.beam_id AND sn.geometry = c.geometry AND sn.method = c.method
 		AND sn.edge = er.edge AND sn.quantity = 'penumbra'
 	` + fmt.Sprintf(baselineAt, "sp", "bp") + `
 	` + fmt.Sprintf(baselineAt, "sn", "bn") + `
@@ -51,14 +51,15 @@ func (d *DB) ExportChecks(ctx context.Context, f halfmark.CheckFilter) ([]sheet.
 		var o halfmark.EdgeOutcome
 		var bn *float64
 		s := &c.Setup
-		if err := rows.Scan(&c.ID, &c.MachineID, &c.BeamID, &kind, &c.MeasuredAt, &c.Device, &c.Operator, &c.Note,
+		var method string
+		if err := rows.Scan(&c.ID, &c.MachineID, &c.BeamID, &kind, &c.MeasuredAt, &c.Device, &method, &c.Operator, &c.Note,
 			&s.SSDcm, &s.DepthCm, &s.FieldXcm, &s.FieldYcm, &s.CollimatorDeg, &s.GantryDeg,
 			&c.Supersedes, &c.SupersededBy, &c.AnalysisVersion, &c.CreatedAt, &c.CreatedBy, &machine, &energy, &fff,
 			&o.Edge, &o.PositionMM, &o.IsoPositionMM, &o.PenumbraMM, &o.LightPositionMM, &o.IsoLightPositionMM,
 			&o.SeriesID, &o.BaselineMM, &bn); err != nil {
 			return nil, mapErr(err)
 		}
-		c.Kind = halfmark.CheckKind(kind)
+		c.Kind, c.Method = halfmark.CheckKind(kind), halfmark.Method(method)
 		fillDeviations(&o, bn)
 		if n := len(out); n == 0 || out[n-1].Check.ID != c.ID {
 			out = append(out, sheet.ExportCheck{Machine: machine, Beam: halfmark.BeamLabel(energy, fff), Check: halfmark.StoredCheck{Check: c}})

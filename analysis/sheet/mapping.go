@@ -23,7 +23,7 @@ const (
 // layout; in the wide layout each edge has its own columns.
 var (
 	checkFields = []string{"machine", "beam", "kind", "measured_at", "date", "time", "ssd_cm", "depth_cm",
-		"field_x_cm", "field_y_cm", "collimator_deg", "gantry_deg", "device", "operator", "note", "id", "supersedes"}
+		"field_x_cm", "field_y_cm", "collimator_deg", "gantry_deg", "device", "method", "operator", "note", "id", "supersedes"}
 	longFields = []string{"edge", "position_mm", "penumbra_mm", "light_position_mm"}
 	// exportOnly are columns the export writes for people to read; the
 	// reader accepts and ignores them (the store derives them again).

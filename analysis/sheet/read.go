@@ -444,6 +444,7 @@ func (t *tableReader) parse(rec []string) (Row, halfmark.Fields) {
 	c.Kind = halfmark.CheckKind(strings.ToLower(kc.v))
 	c.MeasuredAt = t.when(rec, &f)
 	c.Device, c.Operator, c.Note = t.get(rec, "device").v, t.get(rec, "operator").v, t.get(rec, "note").v
+	c.Method = halfmark.Method(strings.ToLower(strings.TrimSpace(t.get(rec, "method").v))) // empty: inferred when stored
 	c.ID, c.Supersedes = strings.ToLower(t.get(rec, "id").v), strings.ToLower(t.get(rec, "supersedes").v)
 	c.Setup = halfmark.Setup{SSDcm: num("ssd_cm", cm), DepthCm: num("depth_cm", cm), FieldXcm: num("field_x_cm", cm),
 		FieldYcm: num("field_y_cm", cm), CollimatorDeg: num("collimator_deg", deg), GantryDeg: num("gantry_deg", deg)}

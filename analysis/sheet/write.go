@@ -26,7 +26,7 @@ type ExportCheck struct {
 // iso_position_mm, baseline_mm, deviation_mm, penumbra_deviation_mm the
 // stored deviations — which the importer accepts and ignores.
 var ExportColumns = []string{"id", "machine", "beam", "kind", "measured_at", "ssd_cm", "depth_cm", "field_x_cm", "field_y_cm",
-	"collimator_deg", "gantry_deg", "device", "operator", "note", "edge", "position_mm", "penumbra_mm", "light_position_mm",
+	"collimator_deg", "gantry_deg", "device", "method", "operator", "note", "edge", "position_mm", "penumbra_mm", "light_position_mm",
 	"supersedes", "superseded_by", "analysis_version", "created_at", "created_by",
 	"iso_position_mm", "baseline_mm", "deviation_mm", "penumbra_deviation_mm"}
 
@@ -46,7 +46,7 @@ func exportRows(cs []ExportCheck, row func(cells []any) error) error {
 			s := c.Setup
 			copy(cells, []any{c.ID, x.Machine, x.Beam, string(c.Kind), c.MeasuredAt.UTC().Format(time.RFC3339Nano),
 				opt(s.SSDcm), opt(s.DepthCm), opt(s.FieldXcm), opt(s.FieldYcm), opt(s.CollimatorDeg), opt(s.GantryDeg),
-				c.Device, c.Operator, c.Note, e.Edge, e.PositionMM, opt(e.PenumbraMM), opt(e.LightPositionMM),
+				c.Device, string(c.Method), c.Operator, c.Note, e.Edge, e.PositionMM, opt(e.PenumbraMM), opt(e.LightPositionMM),
 				c.Supersedes, c.SupersededBy, c.AnalysisVersion, c.CreatedAt.UTC().Format(time.RFC3339), c.CreatedBy,
 				e.IsoPositionMM, opt(e.BaselineMM), opt(e.DeviationMM), opt(e.PenumbraDeviationMM)})
 			if err := row(cells); err != nil {
