@@ -122,3 +122,10 @@ type EvaluationStore interface {
 	// ClaimSlot runs fn once for (job, slot) over every worker process.
 	ClaimSlot(ctx context.Context, job string, slot time.Time, worker string, fn func(context.Context) (string, error)) (ran bool, err error)
 }
+
+// CheckListener is a store that announces stored checks as they commit.
+type CheckListener interface {
+	// ListenChecks calls fn with the machine of every check stored by any
+	// process until ctx ends.
+	ListenChecks(ctx context.Context, fn func(machineID int64)) error
+}

@@ -170,6 +170,9 @@ func (d *DB) insertChecks(ctx context.Context, a halfmark.Actor, cs []halfmark.C
 		if err := auditChecks(ctx, tx, a, cs, isNew); err != nil {
 			return err
 		}
+		if err := announceChecks(ctx, tx, cs, isNew); err != nil {
+			return err
+		}
 		if after != nil {
 			return after(tx, isNew)
 		}
@@ -179,6 +182,21 @@ func (d *DB) insertChecks(ctx context.Context, a halfmark.Actor, cs []halfmark.C
 		return halfmark.BatchResult{}, err
 	}
 	return res, nil
+}
+
+// announceChecks notifies ChecksChannel once per machine of the new
+// checks; PostgreSQL delivers it when the transaction commits, never before.
+func announceChecks(ctx context.Context, tx pgx.Tx, cs []halfmark.Check, isNew map[string]bool) error {
+	seen := map[int64]bool{}
+	var ids []int64
+	for i := range cs {
+		if isNew[cs[i].ID] && !seen[cs[i].MachineID] {
+			seen[cs[i].MachineID] = true
+			ids = append(ids, cs[i].MachineID)
+		}
+	}
+	_, err := tx.Exec(ctx, `SELECT pg_notify($1, m::text) FROM unnest($2::bigint[]) m`, ChecksChannel, ids)
+	return err
 }
 
 // storedHashes returns the body hash of each id already stored.

@@ -11,6 +11,7 @@ run() { echo "bench: $*" >&2; go test -run '^$' "$@" | tee -a "$out" >&2; }
 run -bench '^BenchmarkIngest10kVsCopy$' -benchtime 5x ./api
 run -bench '^BenchmarkImportWideVsLong$' -benchtime 1x -timeout 30m ./cmd/halfmark
 run -bench '^BenchmarkEvaluation$' -benchtime 1x ./worker
+run -bench '^BenchmarkCheckToLevelVisible$' -benchtime 1x ./cmd/halfmark
 run -bench '^BenchmarkFrontPageVsStatic$' -benchtime 1x ./web
 run -bench '^Benchmark(Analyze400|SinglePass400)$' -benchtime 20000x ./analysis/profile
 run -bench '^Benchmark(AnalyzeField1024x768|SinglePass1024x768|Picket60)$' -benchtime 20x ./analysis/epid
@@ -30,8 +31,20 @@ printf '%-58s %12s %10s\n' "full evaluation 2,000×500: evaluate time / read tim
 # (read, evaluate, store verdicts and alerts) is printed beside it.
 printf '%-58s %12s %10s\n' "full evaluation 2,000×500: whole job (s)" "$(secs "$(metric BenchmarkEvaluation/full-job ns/op)")" "—"
 printf '%-58s %12s %10s\n' "  of which read (ms) / evaluate (ms)" "$(metric BenchmarkEvaluation/read read-ms) / $(metric BenchmarkEvaluation/read evaluate-ms)" "—"
+printf '%-58s %12s %10s\n' "check → level visible in /status, serve: p50 / p99 (ms)" "$(metric BenchmarkCheckToLevelVisible/serve p50-ms) / $(metric BenchmarkCheckToLevelVisible/serve p99-ms)" "p99 ≤ 2000"
+printf '%-58s %12s %10s\n' "check → level visible, 1 api + 1 worker: p50 / p99 (ms)" "$(metric BenchmarkCheckToLevelVisible/api+worker p50-ms) / $(metric BenchmarkCheckToLevelVisible/api+worker p99-ms)" "p99 ≤ 2000"
 printf '%-58s %12s %10s\n' "front page (50×4×6): requests/s / static file requests/s" "$(metric BenchmarkFrontPageVsStatic- front/static)" "≥ 0.3"
+printf '%-58s %12s %10s\n' "  status query behind it, uncached (ms)" "$(metric BenchmarkFrontPageVsStatic- status-query-ms)" "—"
 printf '%-58s %12s %10s\n' "profile analysis (400 samples) / one pass over samples" "$(ratio "$(metric BenchmarkAnalyze400- ns/op)" "$(metric BenchmarkSinglePass400- ns/op)")" "≤ 20"
 printf '%-58s %12s %10s\n' "EPID field analysis 1024×768 (ms per image)" "$(ms "$(metric BenchmarkAnalyzeField1024x768- ns/op)")" "≤ 50"
 printf '%-58s %12s %10s\n' "EPID field analysis / one pass over pixels" "$(ratio "$(metric BenchmarkAnalyzeField1024x768- ns/op)" "$(metric BenchmarkSinglePass1024x768- ns/op)")" "—"
 printf '%-58s %12s %10s\n' "picket fence, 36 exposed pairs × 5 strips (ms per image)" "$(ms "$(metric BenchmarkPicket60- ns/op)")" "—"
+
+# The detection benchmark drives the drift engine's entry point
+# (drift.EvaluateMachine) on simulated machines and prints its own table:
+# false findings per machine-year, sessions to the first finding, drifts
+# flagged before tolerance and projections within ±20%, beside plain
+# tolerance checking and single-series charts on the same streams.
+echo "bench: detection (analysis/drift, about 3 minutes)" >&2
+HALFMARK_DETECTION_FULL=1 go test -count=1 -run '^TestDetectionBenchmark$' -v -timeout 20m ./analysis/drift/ |
+  sed -n '/^ *|/p; /detection:/p'

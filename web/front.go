@@ -109,7 +109,7 @@ func (s *server) loadStatus(ctx context.Context) (frontState, error) {
 // statusCacheTTL is how long one answer of the status service serves the
 // front page. Every console reloads the page each minute; the status is
 // recomputed at most this often, and at once after a check is saved here.
-const statusCacheTTL = 5 * time.Second
+const statusCacheTTL = time.Second
 
 // statusCache keeps the newest front-page rows; one caller loads while the
 // others wait for it.

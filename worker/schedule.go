@@ -3,10 +3,12 @@ package worker
 import (
 	"context"
 	"fmt"
+	"halfmark"
 	"log/slog"
 	"os"
 	"os/signal"
 	"strings"
+	"sync"
 	"syscall"
 	"time"
 
@@ -19,6 +21,7 @@ const (
 	JobFull        = "evaluate-full"
 	JobDigest      = "digest"
 	JobDelivery    = "deliver"
+	JobOnWrite     = "evaluate-on-write" // a machine evaluated when its check is stored (not scheduled)
 )
 
 // Start runs the schedule until ctx ends, and reloads the tolerance book
@@ -72,6 +75,9 @@ func (w *Worker) Start(ctx context.Context) error {
 		}
 	}
 	c.Start()
+	if l, ok := w.store.(halfmark.CheckListener); ok {
+		go w.evaluateOnWrite(ctx, l)
+	}
 	w.log.Info("worker started", "worker", w.cfg.WorkerID, "timezone", w.cfg.Location.String(),
 		"incremental", w.cfg.IncrementalSpec, "full", w.cfg.FullSpec, "digest", w.cfg.DigestSpec, "delivery", w.cfg.DeliverySpec)
 	w.ReloadOnSIGHUP(ctx)
@@ -124,4 +130,50 @@ func slotOf(spec string, def time.Duration) time.Duration {
 		}
 	}
 	return def
+}
+
+// evaluateOnWrite evaluates a machine as soon as a check of it is stored
+// (by this or any other process): the level a check sets is visible within
+// moments. Announcements that arrive during an evaluation are gathered and
+// served by one more evaluation per machine. The scheduled incremental run
+// stays as the safety net.
+func (w *Worker) evaluateOnWrite(ctx context.Context, l halfmark.CheckListener) {
+	var mu sync.Mutex
+	pending := map[int64]bool{}
+	wake := make(chan struct{}, 1)
+	go func() {
+		_ = l.ListenChecks(ctx, func(id int64) {
+			mu.Lock()
+			pending[id] = true
+			mu.Unlock()
+			select {
+			case wake <- struct{}{}:
+			default:
+			}
+		})
+	}()
+	for {
+		select {
+		case <-ctx.Done():
+			return
+		case <-wake:
+		}
+		mu.Lock()
+		ids := make([]int64, 0, len(pending))
+		for id := range pending {
+			ids = append(ids, id)
+		}
+		clear(pending)
+		mu.Unlock()
+		for _, id := range ids {
+			start := time.Now()
+			if err := w.EvaluateMachineNow(ctx, id); err != nil {
+				w.log.Error("evaluation on write failed; the scheduled run will retry", "machine", id, "err", err)
+				continue
+			}
+			if w.cfg.Observe != nil {
+				w.cfg.Observe(JobOnWrite, time.Since(start))
+			}
+		}
+	}
 }

@@ -13,7 +13,7 @@ import (
 )
 
 // buildBinary compiles halfmark once per test run.
-func buildBinary(t *testing.T) string {
+func buildBinary(t testing.TB) string {
 	t.Helper()
 	bin := filepath.Join(t.TempDir(), "halfmark")
 	out, err := exec.Command("go", "build", "-o", bin, ".").CombinedOutput()

@@ -22,7 +22,7 @@ func TestMain(m *testing.M) { dbtest.Main(m) }
 
 // runCLI runs the command line against url and returns its exit code and
 // output.
-func runCLI(t *testing.T, url string, args ...string) (int, string, string) {
+func runCLI(t testing.TB, url string, args ...string) (int, string, string) {
 	t.Helper()
 	var out, errb bytes.Buffer
 	getenv := func(k string) string {
@@ -165,7 +165,7 @@ func TestImport100kRowsShowsProgressAndIsIdempotent(t *testing.T) {
 }
 
 // migratedStore gives a throw-away database with the schema applied.
-func migratedStore(t *testing.T) (string, *db.DB) {
+func migratedStore(t testing.TB) (string, *db.DB) {
 	t.Helper()
 	ctx := context.Background()
 	url := dbtest.New(t)

@@ -56,13 +56,13 @@ func (m *mailbox) count(substr string) int {
 }
 
 // startProc runs the binary with args and env until the test ends.
-func startProc(t *testing.T, bin string, env []string, args ...string) *exec.Cmd {
+func startProc(t testing.TB, bin string, env []string, args ...string) *exec.Cmd {
 	return startProcOut(t, bin, env, nil, args...)
 }
 
 // startListening runs a server process on 127.0.0.1:0 and returns the
 // address it bound (from its "listening on" line) once it answers /readyz.
-func startListening(t *testing.T, bin string, env []string, args ...string) string {
+func startListening(t testing.TB, bin string, env []string, args ...string) string {
 	t.Helper()
 	addrc := make(chan string, 1)
 	startProcOut(t, bin, env, func(line string) {
@@ -84,7 +84,7 @@ func startListening(t *testing.T, bin string, env []string, args ...string) stri
 }
 
 // startProcOut is startProc with a callback for each line of standard output.
-func startProcOut(t *testing.T, bin string, env []string, onStdout func(string), args ...string) *exec.Cmd {
+func startProcOut(t testing.TB, bin string, env []string, onStdout func(string), args ...string) *exec.Cmd {
 	t.Helper()
 	cmd := exec.Command(bin, args...)
 	cmd.Env = append(os.Environ(), env...)
@@ -119,7 +119,7 @@ func startProcOut(t *testing.T, bin string, env []string, onStdout func(string),
 	return cmd
 }
 
-func waitReady(t *testing.T, addr string) {
+func waitReady(t testing.TB, addr string) {
 	t.Helper()
 	for i := 0; i < 300; i++ {
 		resp, err := http.Get("http://" + addr + "/readyz")
