@@ -13,7 +13,6 @@ import (
 	"github.com/jackc/pgx/v5"
 	"github.com/jackc/pgx/v5/pgconn"
 	"github.com/jackc/pgx/v5/pgxpool"
-	"github.com/jackc/pgx/v5/stdlib"
 	"github.com/pressly/goose/v3"
 	"github.com/pressly/goose/v3/lock"
 
@@ -63,17 +62,11 @@ func (d *DB) Ping(ctx context.Context) error {
 	return nil
 }
 
-// Migrate applies every pending migration. A PostgreSQL session lock makes
-// two processes migrating at once safe: the second waits, then finds
-// nothing to do.
+// Migrate applies every pending migration and prepares the default runtime
+// role (MigrateWith). A PostgreSQL session lock makes two processes
+// migrating at once safe: the second waits, then finds nothing to do.
 func Migrate(ctx context.Context, url string, log io.Writer) error {
-	cfg, err := pgx.ParseConfig(url)
-	if err != nil {
-		return fmt.Errorf("database URL: %w", err)
-	}
-	sqlDB := stdlib.OpenDB(*cfg)
-	defer sqlDB.Close()
-	return migrateDB(ctx, sqlDB, log)
+	return MigrateWith(ctx, url, MigrateOptions{}, log)
 }
 
 func migrateDB(ctx context.Context, sqlDB *sql.DB, log io.Writer) error {
