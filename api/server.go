@@ -5,6 +5,7 @@ package api
 
 import (
 	"log/slog"
+	"net"
 	"time"
 
 	"github.com/labstack/echo/v4"
@@ -25,9 +26,16 @@ type Services struct {
 	Events   EventService           // service events
 	Charts   ChartService           // series charts (nil: the chart route answers 503)
 	Raw      halfmark.RawService    // raw data behind checks
-	Metrics  *Metrics               // nil: no /metrics
+	Metrics  *Metrics               // nil: requests are not counted
 	Log      *slog.Logger
 	Now      func() time.Time
+
+	// RoleWarning, when not empty, says the service connects as a database
+	// role the append-only triggers do not bind; /readyz repeats it.
+	RoleWarning string
+	// TrustedProxies are the reverse proxies whose X-Forwarded-For and
+	// X-Forwarded-Proto are believed; empty: the socket's peer is the client.
+	TrustedProxies []*net.IPNet
 }
 
 // New returns an echo server with the error handler and the API routes.
@@ -43,11 +51,8 @@ func New(s Services) *echo.Echo {
 	e.HideBanner = true
 	e.HidePort = true
 	e.HTTPErrorHandler = ErrorHandler(s.Log)
+	e.IPExtractor = ClientIP(s.TrustedProxies)
 	h := &handlers{s: s}
-	if s.Metrics != nil {
-		e.Use(s.Metrics.middleware)
-		e.GET("/metrics", echo.WrapHandler(s.Metrics.handler()))
-	}
 	h.routes(e)
 	return e
 }

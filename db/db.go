@@ -125,7 +125,7 @@ func mapErr(err error) error {
 		}
 		return err
 	}
-	if pgconn.SafeToRetry(err) || errors.Is(err, context.DeadlineExceeded) || isConnErr(err) {
+	if pgconn.SafeToRetry(err) || isConnErr(err) || halfmark.Unavailable(err) {
 		return &halfmark.Error{Code: halfmark.EUnavailable, Message: "the database is not available; retry shortly", Err: err}
 	}
 	return err

@@ -240,3 +240,24 @@ func ping(ctx context.Context, connURL string) error {
 	defer conn.Close(context.WithoutCancel(ctx))
 	return conn.Ping(ctx)
 }
+
+// Crash stops the server with PostgreSQL's "immediate" mode: every server
+// process quits at once without a checkpoint, as in a power cut, and the
+// next start runs crash recovery. It is for fault tests.
+func (c *Cluster) Crash(ctx context.Context) error {
+	c.mu.Lock()
+	defer c.mu.Unlock()
+	if c.child != nil {
+		c.child.Process.Signal(syscall.SIGQUIT) // immediate shutdown
+		<-c.childDone
+		c.stopped = true
+		return nil
+	}
+	out, err := c.run.command(ctx, c.DataDir, filepath.Join(c.bin, "pg_ctl"),
+		"-D", c.pgdata, "-m", "immediate", "-w", "-t", "60", "stop").CombinedOutput()
+	if err != nil {
+		return fmt.Errorf("localpg: pg_ctl stop -m immediate failed (%v): %s", err, strings.TrimSpace(string(out)))
+	}
+	c.stopped = true
+	return nil
+}
