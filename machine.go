@@ -7,7 +7,6 @@ import (
 	"strconv"
 	"strings"
 	"time"
-	"unicode/utf8"
 )
 
 // Machine is one linear accelerator.
@@ -106,26 +105,3 @@ type MachineService interface {
 }
 
 func finite(v float64) bool { return !math.IsNaN(v) && !math.IsInf(v, 0) }
-
-// checkText rejects invalid UTF-8, control characters and lengths outside
-// [min, max] runes.
-func checkText(f *Fields, field, s string, min, max int) {
-	if !utf8.ValidString(s) {
-		f.Add(field, "is not valid UTF-8 text")
-		return
-	}
-	n := utf8.RuneCountInString(s)
-	if n < min {
-		f.Add(field, "is required")
-		return
-	}
-	if n > max {
-		f.Add(field, "is %d characters long; at most %d are allowed", n, max)
-	}
-	for _, r := range s {
-		if r < 0x20 && r != '\t' || r == 0x7f {
-			f.Add(field, "contains a control character; use plain text")
-			return
-		}
-	}
-}

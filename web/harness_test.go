@@ -6,6 +6,7 @@ import (
 	"html"
 	"io"
 	"log/slog"
+	"net"
 	"net/http"
 	"net/http/cookiejar"
 	"net/http/httptest"
@@ -141,6 +142,9 @@ type harnessOpts struct {
 	// engine wires the real drift engine: db.DB's StatusService,
 	// AlertService and service events, and the worker's shipped tolerances.
 	engine bool
+	// proxies trusts 127.0.0.0/8 as a reverse proxy (X-Forwarded-For and
+	// X-Forwarded-Proto are then believed).
+	proxies bool
 }
 
 func newHarness(t testing.TB, o harnessOpts) *harness {
@@ -157,9 +161,14 @@ func newHarness(t testing.TB, o harnessOpts) *harness {
 	t.Cleanup(d.Close)
 	h := &harness{t: t, db: d, status: &fakeStatus{}, alerts: &fakeAlerts{}, book: &book{shipped: o.shipped}, ctx: ctx}
 	log := slog.New(slog.NewTextHandler(io.Discard, nil))
-	e := api.New(api.Services{Machines: d, Checks: d, Series: d, Auth: d, Audit: d, Pinger: d, Log: log})
+	var proxies []*net.IPNet
+	if o.proxies {
+		_, loopback, _ := net.ParseCIDR("127.0.0.0/8")
+		proxies = append(proxies, loopback)
+	}
+	e := api.New(api.Services{Machines: d, Checks: d, Series: d, Auth: d, Audit: d, Pinger: d, Log: log, TrustedProxies: proxies})
 	deps := web.Deps{Machines: d, Checks: d, Series: d, Users: d, Sessions: d, SignOffs: d, Raw: d,
-		Alerts: h.alerts, Audit: d, Tolerances: h.book, Log: log}
+		Alerts: h.alerts, Audit: d, Tolerances: h.book, Log: log, TrustedProxies: proxies}
 	if !o.noStatus {
 		deps.Status = h.status
 	}

@@ -237,7 +237,7 @@ func servedHandler(t *testing.T) (*db.DB, http.Handler, *httptest.Server) {
 	if err != nil {
 		t.Fatal(err)
 	}
-	h, err := newHandler(d, wk, log, nil)
+	h, err := newHandler(d, wk, log, nil, httpConfig{})
 	if err != nil {
 		t.Fatal(err)
 	}
