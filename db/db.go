@@ -117,6 +117,10 @@ func mapErr(err error) error {
 			return &halfmark.Error{Code: halfmark.EConflict, Message: "a record with the same key already exists", Err: err}
 		case "23503":
 			return &halfmark.Error{Code: halfmark.EInvalid, Message: "a referenced record does not exist", Err: err}
+		case "22021", "22P05":
+			// A NUL byte or a character the database encoding cannot hold
+			// got past validation: the input's fault, never a 500.
+			return &halfmark.Error{Code: halfmark.EInvalid, Message: "the text holds a character that cannot be stored (a NUL byte or invalid UTF-8); remove it", Err: err}
 		case "42501":
 			return &halfmark.Error{Code: halfmark.EForbidden, Message: pe.Message, Err: err}
 		}

@@ -252,11 +252,8 @@ func (d *DB) SignReport(ctx context.Context, a halfmark.Actor, machineID int64, 
 	if !a.Role.Allows(halfmark.RolePhysicist) {
 		return halfmark.Errorf(halfmark.EForbidden, "signing a report needs the physicist role; you have the %s role", a.Role)
 	}
-	if _, err := time.Parse("2006-01", month); err != nil {
-		return halfmark.Invalid("the sign-off is not valid", halfmark.FieldError{Field: "month", Message: fmt.Sprintf("%q is not a month like 2026-03", month)})
-	}
-	if len(comment) > 2000 {
-		return halfmark.Invalid("the sign-off is not valid", halfmark.FieldError{Field: "comment", Message: "is longer than 2000 characters"})
+	if err := halfmark.ValidateSignOff(month, comment, d.Now()); err != nil {
+		return err
 	}
 	if _, err := d.Machine(ctx, machineID); err != nil {
 		return err

@@ -9,6 +9,7 @@ import (
 	"net/http/cookiejar"
 	"net/http/httptest"
 	"net/url"
+	"regexp"
 	"strings"
 	"testing"
 
@@ -182,6 +183,8 @@ func TestAccessControlMatrix(t *testing.T) {
 	t.Logf("%d routes, %d route × caller requests", len(routes), checked)
 }
 
+var csrfInForm = regexp.MustCompile(`name="_csrf" value="([^"]*)"`)
+
 // call sends one request as the caller. Dashboard POSTs carry a valid CSRF
 // token (fetched with the caller's own cookies) so that the role decides.
 func call(t *testing.T, base, method, path string, cl access, web bool) (int, string) {
@@ -194,13 +197,18 @@ func call(t *testing.T, base, method, path string, cl access, web bool) (int, st
 	client := &http.Client{Jar: jar, CheckRedirect: func(*http.Request, []*http.Request) error { return http.ErrUseLastResponse }}
 	form := url.Values{}
 	if web && method == http.MethodPost {
-		resp, err := client.Get(base + "/login")
-		if err == nil {
+		// The token is bound to the session: take it from a form the
+		// caller's own cookies get (the sign-out form on /, or /login).
+		for _, page := range []string{"/", "/login"} {
+			resp, err := client.Get(base + page)
+			if err != nil {
+				continue
+			}
+			b, _ := io.ReadAll(resp.Body)
 			resp.Body.Close()
-		}
-		for _, ck := range jar.Cookies(u) {
-			if ck.Name == "_csrf" {
-				form.Set("_csrf", ck.Value)
+			if m := csrfInForm.FindSubmatch(b); m != nil {
+				form.Set("_csrf", string(m[1]))
+				break
 			}
 		}
 	}

@@ -67,7 +67,7 @@ func cmdImport(ctx context.Context, e env) error {
 	checks, lines, bad2 := halfmark.GroupCSVRows(rows, res.resolve)
 	bad = append(bad, bad2...)
 	// Validate the grouped checks against the store (projection, beams).
-	if err := st.Prepare(ctx, checks, "checks"); err != nil {
+	if err := st.ValidateChecks(ctx, checks, "checks"); err != nil {
 		if he, ok := err.(*halfmark.Error); ok && he.Code == halfmark.EInvalid {
 			bad = append(bad, mapCheckErrors(he.Fields, lines)...)
 			checks, lines = dropBad(checks, lines, he.Fields)
