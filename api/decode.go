@@ -127,3 +127,13 @@ func pathID(c echo.Context, name string) (int64, error) {
 	}
 	return n, nil
 }
+
+// pathCheckID reads a check id (a UUID) from the path; anything else is
+// ENotFound, never a lookup.
+func pathCheckID(c echo.Context) (string, error) {
+	id := c.Param("id")
+	if !halfmark.IsUUID(id) {
+		return "", halfmark.Errorf(halfmark.ENotFound, "%q is not a check id; check ids are UUIDs such as 0b8e3c2a-5d1f-4e8a-9a57-3f1c2d4e5f60", id)
+	}
+	return strings.ToLower(id), nil
+}
