@@ -110,3 +110,29 @@ func (zeros) Read(p []byte) (int, error) {
 	}
 	return len(p), nil
 }
+
+// The probe's dashboard cases: a NUL byte in the sign-in e-mail is an
+// ordinary refused sign-in (it reached PostgreSQL and gave 500); a report
+// sign-off with a NUL in its comment, or for 9999-12 or 0001-01, is refused
+// with 422 and writes no audit row.
+func TestDashboardFreeTextAndMonthsRefused(t *testing.T) {
+	h := newHarness(t, harnessOpts{})
+	mid, _ := h.machine("Tern", 6)
+	c := h.client()
+	code, _, _ := c.postWithToken("/login", "/login", url.Values{"email": {"therapist\x00@example.org"}, "password": {testPassword}})
+	must(t, code == http.StatusUnauthorized, "NUL in the sign-in e-mail: %d; want 401", code)
+
+	p := h.signIn("physicist@example.org")
+	before := h.count(`SELECT count(*) FROM audit_log WHERE action = 'sign'`)
+	for _, f := range []url.Values{
+		{"month": {"2026-01"}, "comment": {"checked\x00"}},
+		{"month": {"9999-12"}, "comment": {"checked"}},
+		{"month": {"0001-01"}, "comment": {"checked"}},
+	} {
+		code, _, _ := p.postWithToken("/", fmt.Sprintf("/machines/%d/report/sign", mid), f)
+		must(t, code == http.StatusUnprocessableEntity, "sign-off %v: %d; want 422", f, code)
+	}
+	must(t, h.count(`SELECT count(*) FROM audit_log WHERE action = 'sign'`) == before, "a refused sign-off wrote an audit row")
+	code, _, _ = p.postWithToken("/", fmt.Sprintf("/machines/%d/report/sign", mid), url.Values{"month": {"2026-01"}, "comment": {"checked"}})
+	must(t, code == http.StatusSeeOther, "a good sign-off: %d", code)
+}
