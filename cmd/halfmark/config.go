@@ -59,6 +59,7 @@ type dbFlags struct {
 	dataDir     string
 	appRole     string
 	appPassword string // set by migrate only
+	ownerURL    string // set by migrate only: the owner's URL
 	migrating   bool   // migrate runs as the owner: no runtime-role check
 }
 
@@ -100,6 +101,9 @@ func (s *store) Close() {
 // is told so on progress, and refused when HALFMARK_REQUIRE_RUNTIME_ROLE=1.
 func openStore(ctx context.Context, e env, d dbFlags, progress io.Writer) (*store, error) {
 	url := d.url
+	if d.ownerURL != "" {
+		url = d.ownerURL
+	}
 	if url == "" {
 		url = e.getenv("DATABASE_URL")
 	}
