@@ -9,6 +9,7 @@ import (
 	"math"
 	"net/http"
 	"net/http/httptest"
+	neturl "net/url"
 	"strings"
 	"testing"
 	"time"
@@ -42,11 +43,7 @@ func newHTTPServer(h http.Handler) *httptest.Server { return httptest.NewServer(
 func newBenchEnv(t testing.TB) *env {
 	t.Helper()
 	ctx := context.Background()
-	url := dbtest.New(t)
-	if err := db.Migrate(ctx, url, nil); err != nil {
-		t.Fatal(err)
-	}
-	d, err := db.Open(ctx, url)
+	d, err := db.Open(ctx, runtimeRoleURL(t, dbtest.New(t)))
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -71,6 +68,23 @@ func newBenchEnv(t testing.TB) *env {
 	e.mustDo("POST", fmt.Sprintf("/api/v1/machines/%d/beams", m.ID), halfmark.RoleAdmin, `{"energy_mv":6,"fff":false}`, 201, &b)
 	e.beam = b.ID
 	return e
+}
+
+// runtimeRoleURL migrates the database at ownerURL as its owner and returns
+// the URL of the runtime role the service uses in production, so that every
+// API test runs with the service's own grants and nothing more.
+func runtimeRoleURL(t testing.TB, ownerURL string) string {
+	t.Helper()
+	const role, pw = "halfmark_app_apitest", "apitest-password"
+	if err := db.MigrateWith(context.Background(), ownerURL, db.MigrateOptions{AppRole: role, AppPassword: pw}, nil); err != nil {
+		t.Fatal(err)
+	}
+	u, err := neturl.Parse(ownerURL)
+	if err != nil {
+		t.Fatal(err)
+	}
+	u.User = neturl.UserPassword(role, pw)
+	return u.String()
 }
 
 // do sends a request with the role's token ("" role: no token).

@@ -159,7 +159,7 @@ func checkCorrectedInStore(ctx context.Context, tx pgx.Tx, cs []halfmark.Check, 
 		correctedBy   string
 	}
 	rows, err := tx.Query(ctx, `SELECT c.id::text, c.machine_id, c.beam_id, coalesce((SELECT x.id::text FROM checks x WHERE x.supersedes = c.id), '')
-		FROM checks c WHERE c.id = ANY($1::text[]::uuid[]) FOR SHARE OF c`, targets)
+		FROM checks c WHERE c.id = ANY($1::text[]::uuid[])`, targets)
 	if err != nil {
 		return err
 	}

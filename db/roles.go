@@ -6,6 +6,8 @@ import (
 	"errors"
 	"fmt"
 	"io"
+	"strings"
+	"time"
 
 	"github.com/jackc/pgx/v5"
 	"github.com/jackc/pgx/v5/pgconn"
@@ -103,6 +105,20 @@ func grantRuntime(ctx context.Context, cfg *pgx.ConnConfig, o MigrateOptions) er
 			return fmt.Errorf("create the runtime role %q: %w", o.AppRole, err)
 		}
 	}
+	var err2 error
+	for attempt := 0; attempt < 5; attempt++ {
+		// A role is shared by every database of the cluster: migrations of
+		// two databases at once may both set its password, and PostgreSQL
+		// refuses the second with "tuple concurrently updated". Try again.
+		if err2 = grantOnce(ctx, conn, o); err2 == nil || !strings.Contains(err2.Error(), "concurrently") {
+			return err2
+		}
+		time.Sleep(time.Duration(attempt+1) * 50 * time.Millisecond)
+	}
+	return err2
+}
+
+func grantOnce(ctx context.Context, conn *pgx.Conn, o MigrateOptions) error {
 	return pgx.BeginFunc(ctx, conn, func(tx pgx.Tx) error {
 		if _, err := tx.Exec(ctx, `SELECT pg_advisory_xact_lock(hashtext('halfmark_grant_runtime'))`); err != nil {
 			return err

@@ -11,6 +11,7 @@ import (
 	"net/http/cookiejar"
 	"net/http/httptest"
 	"net/url"
+	neturl "net/url"
 	"regexp"
 	"strings"
 	"sync"
@@ -149,12 +150,19 @@ type harnessOpts struct {
 
 func newHarness(t testing.TB, o harnessOpts) *harness {
 	t.Helper()
-	url := dbtest.New(t)
+	ownerURL := dbtest.New(t)
 	ctx := context.Background()
-	if err := db.Migrate(ctx, url, nil); err != nil {
+	// The dashboard runs as the runtime role, with the service's grants only.
+	const role, pw = "halfmark_app_webtest", "webtest-password"
+	if err := db.MigrateWith(ctx, ownerURL, db.MigrateOptions{AppRole: role, AppPassword: pw}, nil); err != nil {
 		t.Fatal(err)
 	}
-	d, err := db.Open(ctx, url)
+	u, err := neturl.Parse(ownerURL)
+	if err != nil {
+		t.Fatal(err)
+	}
+	u.User = neturl.UserPassword(role, pw)
+	d, err := db.Open(ctx, u.String())
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -195,7 +203,7 @@ func newHarness(t testing.TB, o harnessOpts) *harness {
 func (h *harness) machine(name string, mv ...float64) (int64, []int64) {
 	h.t.Helper()
 	a := halfmark.CLIActor("test")
-	m := halfmark.Machine{Name: name, Model: "test linac"}
+	m := halfmark.Machine{Name: name, Model: "test linac", MLCLeafPairs: 60, MLCLayout: "60"}
 	if err := h.db.CreateMachine(h.ctx, a, &m); err != nil {
 		h.t.Fatal(err)
 	}
