@@ -31,6 +31,10 @@ func decodeJSON(c echo.Context, v any) error {
 			fmt.Sprintf("send the body as JSON with Content-Type: application/json (got %q)", ct))
 	}
 	body, err := io.ReadAll(io.LimitReader(r.Body, MaxBody+1))
+	if isTooLarge(err) {
+		return badRequest(http.StatusRequestEntityTooLarge,
+			"the request body is over the 1 MiB limit; split a large import into batches")
+	}
 	if err != nil {
 		return badRequest(http.StatusBadRequest, "the request body could not be read: "+err.Error())
 	}

@@ -402,3 +402,27 @@ func TestProbeCasesRefused(t *testing.T) {
 	}
 	_ = ctx
 }
+
+// A body over the server-wide limit is 413 whether or not it declares its
+// length (a chunked body is cut off at the limit), before authentication.
+func TestBodyOverLimitIs413(t *testing.T) {
+	e := newEnv(t)
+	for _, chunked := range []bool{false, true} {
+		var body io.Reader = strings.NewReader(`{"note":"` + strings.Repeat("a", 2<<20) + `"}`)
+		if chunked {
+			body = io.MultiReader(body) // hides the length: sent chunked
+		}
+		req, _ := http.NewRequest("POST", e.srv.URL+"/api/v1/checks", body)
+		req.Header.Set("Content-Type", "application/json")
+		req.Header.Set("Authorization", "Bearer "+e.tokens[halfmark.RoleTherapist])
+		resp, err := http.DefaultClient.Do(req)
+		if err != nil {
+			t.Fatal(err)
+		}
+		io.Copy(io.Discard, resp.Body)
+		resp.Body.Close()
+		if resp.StatusCode != http.StatusRequestEntityTooLarge {
+			t.Errorf("2 MiB JSON (chunked %v): %d; want 413", chunked, resp.StatusCode)
+		}
+	}
+}
