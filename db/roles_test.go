@@ -130,6 +130,10 @@ func TestRuntimeRoleCannotTamper(t *testing.T) {
 		}
 	}
 	t.Logf("runtime role: %d of %d tampering statements succeeded", succeeded, len(tamper))
+	// Nor can it make objects of its own beside the records.
+	if _, err := app.Pool.Exec(ctx, `CREATE TABLE checks_shadow (id int)`); err == nil {
+		t.Error("the runtime role created a table in schema public")
+	}
 
 	// TRUNCATE of every append-only table is refused even for the owner.
 	for _, table := range []string{"checks", "baselines", "audit_log", "raw_data"} {

@@ -14,7 +14,7 @@
 --   sessions: SELECT, INSERT, UPDATE, DELETE (sign-out deletes the row);
 --   every other table: SELECT, INSERT, UPDATE (state that moves on);
 --   sequences: USAGE, SELECT; views: SELECT.
--- Nothing grants TRUNCATE, REFERENCES or TRIGGER.
+-- Nothing grants TRUNCATE, REFERENCES or TRIGGER, nor CREATE in the schema.
 
 CREATE TRIGGER baselines_no_truncate BEFORE TRUNCATE ON baselines FOR EACH STATEMENT EXECUTE FUNCTION halfmark_refuse_change();
 
@@ -25,7 +25,14 @@ DECLARE
     append_only boolean;
 BEGIN
     EXECUTE format('REVOKE ALL ON ALL TABLES IN SCHEMA public FROM %I', app);
+    EXECUTE format('REVOKE CREATE ON SCHEMA public FROM %I', app);
     EXECUTE format('GRANT USAGE ON SCHEMA public TO %I', app);
+    -- PostgreSQL before 15 lets every role create objects in public.
+    BEGIN
+        REVOKE CREATE ON SCHEMA public FROM PUBLIC;
+    EXCEPTION WHEN insufficient_privilege THEN
+        RAISE NOTICE 'halfmark: could not revoke CREATE on schema public from PUBLIC (not the schema owner)';
+    END;
     FOR t IN SELECT c.oid, c.relname, c.relkind FROM pg_class c JOIN pg_namespace n ON n.oid = c.relnamespace
              WHERE n.nspname = 'public' AND c.relkind IN ('r', 'p', 'v', 'S') LOOP
         IF t.relkind = 'S' THEN
