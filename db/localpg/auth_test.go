@@ -72,3 +72,45 @@ func TestSuperuserNeedsThePassword(t *testing.T) {
 		t.Logf("superuser login from OS user nobody refused: %s", strings.TrimSpace(string(out)))
 	}
 }
+
+// A cluster made with trust authentication (before passwords) is moved to
+// SCRAM at its next Open: a new 0600 password file, pg_hba.conf without
+// trust, and a login without the password refused.
+func TestTrustClusterMovesToPasswords(t *testing.T) {
+	ctx := testContext(t)
+	dir := testDir(t)
+	c := mustOpen(t, ctx, dir, withNoSync())
+	if err := c.shutdown(ctx); err != nil {
+		t.Fatal(err)
+	}
+	legacy := "local all all trust\nhost all all 127.0.0.1/32 trust\nhost all all ::1/128 trust\n"
+	hba := filepath.Join(c.pgdata, "pg_hba.conf")
+	if err := os.WriteFile(hba, []byte(legacy), 0o600); err != nil {
+		t.Fatal(err)
+	}
+	if err := c.run.chown(hba); err != nil {
+		t.Fatal(err)
+	}
+	if err := os.Remove(filepath.Join(dir, superuserPasswordFile)); err != nil {
+		t.Fatal(err)
+	}
+	c2 := mustOpen(t, ctx, dir, withNoSync())
+	if c2.superPassword == "" {
+		t.Fatal("no superuser password after Open of a trust cluster")
+	}
+	fi, err := os.Stat(filepath.Join(dir, superuserPasswordFile))
+	if err != nil || fi.Mode().Perm() != 0o600 {
+		t.Fatalf("password file: %v %v", fi, err)
+	}
+	b, _ := os.ReadFile(hba)
+	if strings.Contains(string(b), "trust") {
+		t.Errorf("pg_hba.conf still trusts: %s", b)
+	}
+	if _, err := pgx.Connect(ctx, clusterURL(c2.Port, "postgres")); err == nil {
+		t.Error("a login without the password succeeded after the move")
+	}
+	conn := mustConnect(t, ctx, c2.URL("postgres"))
+	if err := conn.Ping(ctx); err != nil {
+		t.Fatal(err)
+	}
+}
