@@ -48,7 +48,7 @@ func MigrateWith(ctx context.Context, url string, o MigrateOptions, log io.Write
 	defer sqlDB.Close()
 	var super, owner bool
 	err = sqlDB.QueryRowContext(ctx, `SELECT r.rolsuper,
-		coalesce((SELECT pg_get_userbyid(c.relowner) = current_user FROM pg_class c
+		coalesce((SELECT pg_has_role(current_user, c.relowner, 'USAGE') FROM pg_class c
 		          WHERE c.relname = 'checks' AND c.relnamespace = 'public'::regnamespace), true)
 		FROM pg_roles r WHERE r.rolname = current_user`).Scan(&super, &owner)
 	if err != nil {
