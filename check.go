@@ -117,10 +117,9 @@ type Check struct {
 	CreatedBy       string       `json:"created_by"`
 }
 
-// Validate checks everything that can be checked without the store and
-// fills IsoPositionMM. prefix is prepended to field names ("checks[3].").
-// sadCm is the machine's SAD (pass 0 when the machine is unknown; the
-// projection is then left to a second call).
+// Validate checks the rules of one check that need neither its machine nor
+// other checks; ValidateChecks applies them with the rest. prefix is
+// prepended to field names ("checks[3].").
 func (c *Check) Validate(prefix string, now time.Time) Fields {
 	var f Fields
 	if c.ID != "" && !IsUUID(c.ID) {
@@ -146,9 +145,9 @@ func (c *Check) Validate(prefix string, now time.Time) Fields {
 	case c.MeasuredAt.Year() < 1990:
 		f.Add(prefix+"measured_at", "%s is before 1990; check the date typed", c.MeasuredAt.Format(time.RFC3339))
 	}
-	checkText(&f, prefix+"device", c.Device, 0, 200)
-	checkText(&f, prefix+"operator", c.Operator, 0, 200)
-	checkText(&f, prefix+"note", c.Note, 0, 4000)
+	checkLine(&f, prefix+"device", c.Device, 0, MaxNameLength)
+	checkLine(&f, prefix+"operator", c.Operator, 0, MaxNameLength)
+	checkText(&f, prefix+"note", c.Note, 0, MaxCommentLength)
 	c.Setup.validate(&f, prefix+"setup.")
 	if len(c.Edges) == 0 {
 		f.Add(prefix+"edges", "at least one edge result is required")
@@ -233,33 +232,6 @@ func (s Setup) validate(f *Fields, p string) {
 			}
 		}
 	}
-}
-
-// Project sets each edge's isocentre-plane position from its measured one
-// with project(x, SAD, SSD, depth) — x·SAD/(SSD + depth) (magnification,
-// common practice; analysis.ProjectToIsocentre). A setup at the isocentre
-// projects with SSD = SAD, depth 0.
-func (c *Check) Project(sadCm float64, project func(x, sadCm, ssdCm, depthCm float64) (float64, error)) error {
-	ssd, depth := sadCm, 0.0
-	if !c.Setup.AtIsocentre() {
-		ssd, depth = deref(c.Setup.SSDcm, sadCm), deref(c.Setup.DepthCm, 0)
-	}
-	for i := range c.Edges {
-		e := &c.Edges[i]
-		v, err := project(e.PositionMM, sadCm, ssd, depth)
-		if err != nil {
-			return err
-		}
-		e.IsoPositionMM = v
-		if e.LightPositionMM != nil {
-			v, err := project(*e.LightPositionMM, sadCm, ssd, depth)
-			if err != nil {
-				return err
-			}
-			e.IsoLightPositionMM = &v
-		}
-	}
-	return nil
 }
 
 // BodyHash is a fingerprint of what the client sent (not the derived

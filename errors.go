@@ -1,9 +1,13 @@
 package halfmark
 
 import (
+	"context"
 	"errors"
 	"fmt"
+	"io"
+	"net"
 	"strings"
+	"syscall"
 )
 
 // ErrorCode classifies a domain error; api/ maps each code to an HTTP status.
@@ -101,4 +105,37 @@ func (f Fields) Err(message string) error {
 		return nil
 	}
 	return Invalid(message, f...)
+}
+
+// Unavailable reports whether err says a dependency could not be reached or
+// went away mid-request (a dropped or refused connection, a server shutting
+// down), so that the request may be retried: EUnavailable, an SQLSTATE of
+// class 08 (connection exception) or 57 (operator intervention), or a
+// network error. PostgreSQL documentation, Appendix A "PostgreSQL Error
+// Codes".
+func Unavailable(err error) bool {
+	if err == nil {
+		return false
+	}
+	if ErrorCodeOf(err) == EUnavailable {
+		return true
+	}
+	var st interface{ SQLState() string }
+	if errors.As(err, &st) {
+		c := st.SQLState()
+		return strings.HasPrefix(c, "08") || strings.HasPrefix(c, "57")
+	}
+	var ne net.Error
+	if errors.As(err, &ne) {
+		return true
+	}
+	if errors.Is(err, io.ErrUnexpectedEOF) || errors.Is(err, io.EOF) || errors.Is(err, net.ErrClosed) ||
+		errors.Is(err, syscall.ECONNRESET) || errors.Is(err, syscall.ECONNREFUSED) || errors.Is(err, syscall.EPIPE) ||
+		errors.Is(err, context.DeadlineExceeded) {
+		return true
+	}
+	// pgx reports a connection it had to close with these words and no type.
+	msg := err.Error()
+	return strings.Contains(msg, "conn closed") || strings.Contains(msg, "closed pool") ||
+		strings.Contains(msg, "failed to connect") || strings.Contains(msg, "unexpected EOF")
 }

@@ -7,7 +7,10 @@ import (
 	"strconv"
 	"strings"
 	"time"
-	"unicode/utf8"
+	"unicode"
+
+	"golang.org/x/text/cases"
+	"golang.org/x/text/unicode/norm"
 )
 
 // Machine is one linear accelerator.
@@ -25,14 +28,22 @@ type Machine struct {
 	Collimators *Collimators `json:"collimators"` // collimator geometry; nil until recorded
 }
 
-// Validate checks a machine before it is stored.
+// Validate checks a machine before it is stored and normalises its name
+// (Unicode NFKC, trimmed) and layout (trimmed).
 func (m *Machine) Validate() error {
 	var f Fields
-	m.Name = strings.TrimSpace(m.Name)
-	checkText(&f, "name", m.Name, 1, 80)
-	checkText(&f, "model", m.Model, 0, 200)
-	checkText(&f, "serial", m.Serial, 0, 200)
-	checkText(&f, "mlc_layout", m.MLCLayout, 0, 200)
+	m.Name = strings.TrimSpace(norm.NFKC.String(m.Name))
+	checkLine(&f, "name", m.Name, 1, 80)
+	for _, r := range m.Name {
+		if unicode.In(r, unicode.Cf, unicode.Co, unicode.Cs) || unicode.IsSpace(r) && r != ' ' {
+			f.Add("name", "contains an invisible or formatting character (U+%04X); type the name with letters, digits, spaces and punctuation only", r)
+			break
+		}
+	}
+	checkLine(&f, "model", m.Model, 0, 200)
+	checkLine(&f, "serial", m.Serial, 0, 200)
+	m.MLCLayout = strings.TrimSpace(m.MLCLayout)
+	checkLine(&f, "mlc_layout", m.MLCLayout, 0, 200)
 	if m.SADcm == 0 {
 		m.SADcm = 100
 	}
@@ -42,10 +53,55 @@ func (m *Machine) Validate() error {
 	if m.MLCLeafPairs < 0 || m.MLCLeafPairs > 200 {
 		f.Add("mlc_leaf_pairs", "must be between 0 and 200 (got %d)", m.MLCLeafPairs)
 	}
+	if m.MLCLayout != "" {
+		switch pairs, err := MLCLayoutPairs(m.MLCLayout); {
+		case err != nil:
+			f.Add("mlc_layout", "%s", err.Error())
+		case m.MLCLeafPairs == 0:
+			f.Add("mlc_layout", "is given but mlc_leaf_pairs is 0; give the number of leaf pairs, or no layout for a machine without MLC")
+		case pairs != m.MLCLeafPairs:
+			f.Add("mlc_layout", "%q describes %d leaf pairs but mlc_leaf_pairs is %d; make them agree", m.MLCLayout, pairs, m.MLCLeafPairs)
+		}
+	}
 	if m.Collimators != nil {
 		m.Collimators.validate(&f, m.SADcm, m.MLCLeafPairs > 0)
 	}
 	return f.Err("the machine is not valid")
+}
+
+// MachineNameKey is what two machine names must not share: the name after
+// Unicode NFKC normalisation and full case folding, so "TERN", "Tern" and a
+// full-width "Ｔｅｒｎ" are one name. Unicode Standard Annex #15
+// (normalization forms); Unicode Standard §5.18 (case folding).
+func MachineNameKey(name string) string {
+	return cases.Fold().String(norm.NFKC.String(strings.TrimSpace(name)))
+}
+
+// MLCLayoutPairs returns the number of leaf pairs of an MLC layout: one of
+// the known names "60" (10×10 mm, 40×5 mm, 10×10 mm) and "80" (80×5 mm), or
+// a spec of comma-separated COUNTxWIDTH groups from the Y2 side, e.g.
+// "10x10,40x5,10x10" (count 1–200, width in mm above 0 and at most 100).
+func MLCLayoutPairs(layout string) (int, error) {
+	switch strings.TrimSpace(layout) {
+	case "60":
+		return 60, nil
+	case "80":
+		return 80, nil
+	}
+	total := 0
+	for _, g := range strings.Split(layout, ",") {
+		cs, ws, ok := strings.Cut(strings.ToLower(strings.TrimSpace(g)), "x")
+		n, nerr := strconv.Atoi(strings.TrimSpace(cs))
+		w, werr := strconv.ParseFloat(strings.TrimSpace(ws), 64)
+		if !ok || nerr != nil || werr != nil || n < 1 || n > 200 || !finite(w) || w <= 0 || w > 100 {
+			return 0, fmt.Errorf("%q is not a leaf layout: use 60, 80 or groups COUNTxWIDTH (mm) such as \"10x10,40x5,10x10\"", layout)
+		}
+		total += n
+	}
+	if total > 200 {
+		return 0, fmt.Errorf("%q has %d leaf pairs; at most 200", layout, total)
+	}
+	return total, nil
 }
 
 // Beam is one photon beam of a machine.
@@ -82,11 +138,17 @@ func ParseBeamLabel(s string) (energyMV float64, fff bool, err error) {
 	return e, fff, nil
 }
 
-// Validate checks a beam before it is stored.
+// Validate checks a beam before it is stored. Nominal photon energies are
+// whole or half megavolts (4, 6, 10, 15, 18 MV; 2.5 MV imaging beams), so
+// 6.0000000001 is refused rather than stored beside 6 as another beam
+// (IEC 60976 states the nominal energy in MV; common practice).
 func (b *Beam) Validate() error {
 	var f Fields
-	if !finite(b.EnergyMV) || b.EnergyMV < 1 || b.EnergyMV > 50 {
+	switch {
+	case !finite(b.EnergyMV) || b.EnergyMV < 1 || b.EnergyMV > 50:
 		f.Add("energy_mv", "must be a nominal photon energy between 1 and 50 MV (got %v)", b.EnergyMV)
+	case b.EnergyMV*2 != math.Round(b.EnergyMV*2):
+		f.Add("energy_mv", "%v MV is not a nominal energy; give whole or half megavolts such as 6, 10 or 2.5", b.EnergyMV)
 	}
 	b.Label = BeamLabel(b.EnergyMV, b.FFF)
 	return f.Err("the beam is not valid")
@@ -95,11 +157,12 @@ func (b *Beam) Validate() error {
 // MachineService stores machines and beams.
 type MachineService interface {
 	// CreateMachine stores m and sets its ID. EInvalid for a bad machine,
-	// EConflict when the name is taken.
+	// EConflict when the name is taken (compared as MachineNameKey).
 	CreateMachine(ctx context.Context, a Actor, m *Machine) error
 	// Machine returns one machine; ENotFound when absent.
 	Machine(ctx context.Context, id int64) (Machine, error)
-	// MachineByName returns one machine by exact name; ENotFound when absent.
+	// MachineByName returns one machine by name, compared as MachineNameKey;
+	// ENotFound when absent.
 	MachineByName(ctx context.Context, name string) (Machine, error)
 	// Machines lists all machines by name.
 	Machines(ctx context.Context) ([]Machine, error)
@@ -115,26 +178,3 @@ type MachineService interface {
 }
 
 func finite(v float64) bool { return !math.IsNaN(v) && !math.IsInf(v, 0) }
-
-// checkText rejects invalid UTF-8, control characters and lengths outside
-// [min, max] runes.
-func checkText(f *Fields, field, s string, min, max int) {
-	if !utf8.ValidString(s) {
-		f.Add(field, "is not valid UTF-8 text")
-		return
-	}
-	n := utf8.RuneCountInString(s)
-	if n < min {
-		f.Add(field, "is required")
-		return
-	}
-	if n > max {
-		f.Add(field, "is %d characters long; at most %d are allowed", n, max)
-	}
-	for _, r := range s {
-		if r < 0x20 && r != '\t' || r == 0x7f {
-			f.Add(field, "contains a control character; use plain text")
-			return
-		}
-	}
-}

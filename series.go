@@ -50,6 +50,12 @@ type Point struct {
 	Kind       CheckKind `json:"kind"`
 	Device     string    `json:"device,omitempty"`
 	Operator   string    `json:"operator,omitempty"`
+	// Corrected marks a point whose check a later check supersedes: shown
+	// (struck through) but left out of every statistic. SupersededBy is the
+	// correcting check, CorrectionReason its note.
+	Corrected        bool   `json:"corrected,omitempty"`
+	SupersededBy     string `json:"superseded_by,omitempty"`
+	CorrectionReason string `json:"correction_reason,omitempty"`
 }
 
 // BaselineSource says how a baseline was set.

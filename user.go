@@ -9,9 +9,12 @@ import (
 	"unicode/utf8"
 )
 
-// Sign-in rules. A user who fails MaxFailedSignIns times in a row is locked
-// out for LockoutDuration (common practice; OWASP Authentication Cheat Sheet
-// suggests a lock-out threshold and period rather than a permanent lock).
+// Sign-in rules. After MaxFailedSignIns failures in a row for one account
+// from one client address, that address waits before trying the account
+// again, the wait doubling with each further failure up to LockoutDuration;
+// the account itself is never locked, so a stranger cannot lock a user out
+// (common practice; OWASP Authentication Cheat Sheet, "Protect Against
+// Automated Attacks", prefers throttling to a permanent lock).
 const (
 	MaxFailedSignIns  = 5
 	LockoutDuration   = 15 * time.Minute
@@ -64,10 +67,9 @@ type UserService interface {
 	// CreateUser stores a user with an argon2id hash of password. EInvalid
 	// for a bad e-mail, role or password; EConflict when the e-mail is taken.
 	CreateUser(ctx context.Context, a Actor, email string, role Role, password string) (User, error)
-	// AuthenticateUser checks a password. EUnauthorized for an unknown
-	// e-mail or a wrong password (the same message for both); EForbidden
-	// while the user is locked out after MaxFailedSignIns failures — then
-	// even the right password is refused until LockoutDuration has passed.
+	// AuthenticateUser checks a password. EUnauthorized, with one message,
+	// for an unknown e-mail, a malformed one, or a wrong password; it never
+	// locks the account (throttling is the caller's, per address).
 	AuthenticateUser(ctx context.Context, email, password string) (User, error)
 	// User returns one user; ENotFound when absent.
 	User(ctx context.Context, id int64) (User, error)

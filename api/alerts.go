@@ -84,6 +84,9 @@ func (h *handlers) alertAction(c echo.Context, act func(context.Context, halfmar
 	if err := decodeJSON(c, &req); err != nil {
 		return err
 	}
+	if err := halfmark.ValidateComment("comment", req.Comment, false); err != nil {
+		return err
+	}
 	al, err := act(c.Request().Context(), actor(c), id, req.Comment)
 	if err != nil {
 		return err

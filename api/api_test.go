@@ -9,6 +9,7 @@ import (
 	"math"
 	"net/http"
 	"net/http/httptest"
+	neturl "net/url"
 	"strings"
 	"testing"
 	"time"
@@ -30,6 +31,8 @@ type env struct {
 	tokens map[halfmark.Role]string
 	mach   int64
 	beam   int64
+	// metrics is /metrics on its own server (serve --metrics-addr).
+	metrics *httptest.Server
 }
 
 func newEnv(t *testing.T) *env { return newBenchEnv(t) }
@@ -40,10 +43,17 @@ func newHTTPServer(h http.Handler) *httptest.Server { return httptest.NewServer(
 func newBenchEnv(t testing.TB) *env {
 	t.Helper()
 	ctx := context.Background()
-	d := dbtest.Open(t)
+	d, err := db.Open(ctx, runtimeRoleURL(t, dbtest.New(t)))
+	if err != nil {
+		t.Fatal(err)
+	}
+	t.Cleanup(d.Close)
 	e := &env{t: t, db: d, tokens: map[halfmark.Role]string{}}
-	e.srv = newHTTPServer(api.New(api.Services{Machines: d, Checks: d, Series: d, Auth: d, Audit: d, Pinger: d, Raw: d, Metrics: api.NewMetrics(d), Penumbra: d}))
+	metrics := api.NewMetrics(d)
+	e.srv = newHTTPServer(api.New(api.Services{Machines: d, Checks: d, Series: d, Auth: d, Audit: d, Pinger: d, Raw: d, Metrics: metrics, Penumbra: d}))
 	t.Cleanup(e.srv.Close)
+	e.metrics = newHTTPServer(api.MetricsHandler(metrics))
+	t.Cleanup(e.metrics.Close)
 	for _, r := range []halfmark.Role{halfmark.RoleTherapist, halfmark.RolePhysicist, halfmark.RoleAdmin} {
 		_, s, err := d.CreateToken(ctx, halfmark.CLIActor("test"), "t-"+string(r), r)
 		if err != nil {
@@ -58,6 +68,23 @@ func newBenchEnv(t testing.TB) *env {
 	e.mustDo("POST", fmt.Sprintf("/api/v1/machines/%d/beams", m.ID), halfmark.RoleAdmin, `{"energy_mv":6,"fff":false}`, 201, &b)
 	e.beam = b.ID
 	return e
+}
+
+// runtimeRoleURL migrates the database at ownerURL as its owner and returns
+// the URL of the runtime role the service uses in production, so that every
+// API test runs with the service's own grants and nothing more.
+func runtimeRoleURL(t testing.TB, ownerURL string) string {
+	t.Helper()
+	const role, pw = "halfmark_app_apitest", "apitest-password"
+	if err := db.MigrateWith(context.Background(), ownerURL, db.MigrateOptions{AppRole: role, AppPassword: pw}, nil); err != nil {
+		t.Fatal(err)
+	}
+	u, err := neturl.Parse(ownerURL)
+	if err != nil {
+		t.Fatal(err)
+	}
+	u.User = neturl.UserPassword(role, pw)
+	return u.String()
 }
 
 // do sends a request with the role's token ("" role: no token).
@@ -326,7 +353,8 @@ func TestRoles(t *testing.T) {
 }
 
 // A correction supersedes the old check; both are kept, the series shows the
-// new value only, and the audit log has both writes.
+// new value as its current point and the old one marked corrected (with the
+// correcting check and its reason), and the audit log has both writes.
 func TestSupersessionKeepsHistory(t *testing.T) {
 	e := newEnv(t)
 	var old, corr storedCheck
@@ -342,8 +370,17 @@ func TestSupersessionKeepsHistory(t *testing.T) {
 		Points []halfmark.Point `json:"points"`
 	}
 	e.mustDo("GET", fmt.Sprintf("/api/v1/series/%d/points", corr.Edges[0].SeriesID), halfmark.RoleTherapist, "", 200, &pts)
-	if len(pts.Points) != 1 || pts.Points[0].CheckID != corr.ID {
-		t.Fatalf("series points %+v, want only the correction", pts.Points)
+	current, corrected := 0, 0
+	for _, p := range pts.Points {
+		switch {
+		case p.CheckID == corr.ID && !p.Corrected:
+			current++
+		case p.CheckID == old.ID && p.Corrected && p.SupersededBy == corr.ID && p.CorrectionReason != "":
+			corrected++
+		}
+	}
+	if len(pts.Points) != 2 || current != 1 || corrected != 1 {
+		t.Fatalf("series points %+v, want the correction and the old point marked corrected", pts.Points)
 	}
 	if e.count("checks") != 2 {
 		t.Fatal("both versions must be kept")
@@ -443,14 +480,23 @@ func TestHealthAndOpenAPI(t *testing.T) {
 	}
 }
 
-// /metrics reports requests by route template and the checks and edge
-// results ingested, in the Prometheus text format.
+// /metrics, on its own address, reports requests by route template and the
+// checks and edge results ingested, in the Prometheus text format; the
+// service address does not serve it.
 func TestMetrics(t *testing.T) {
 	e := newEnv(t)
 	e.mustDo("POST", "/api/v1/checks", halfmark.RoleTherapist, e.checkBody("", `[{"edge":"X1","position_mm":55.1},{"edge":"X2","position_mm":55}]`), 201, nil)
-	st, _, b := e.do("GET", "/metrics", "", "")
-	if st != 200 {
-		t.Fatalf("/metrics: %d", st)
+	if st, _, _ := e.do("GET", "/metrics", "", ""); st != 404 {
+		t.Errorf("/metrics on the service address: %d; want 404", st)
+	}
+	resp, err := http.Get(e.metrics.URL + "/metrics")
+	if err != nil {
+		t.Fatal(err)
+	}
+	b, _ := io.ReadAll(resp.Body)
+	resp.Body.Close()
+	if resp.StatusCode != 200 || resp.Header.Get("X-Content-Type-Options") != "nosniff" {
+		t.Fatalf("/metrics: %d, headers %v", resp.StatusCode, resp.Header)
 	}
 	for _, want := range []string{
 		"halfmark_ingested_checks_total 1",

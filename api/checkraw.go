@@ -31,6 +31,9 @@ func (h *handlers) checkFromRaw(c echo.Context) error {
 	if err := dec.Decode(&req); err != nil {
 		return jsonProblem(err, []byte(r.FormValue("check")))
 	}
+	if err := dec.Decode(&struct{}{}); err != io.EOF {
+		return badRequest(http.StatusBadRequest, "the check part holds more than one JSON value; send exactly one object")
+	}
 	if len(req.Edges) > 0 {
 		return halfmark.Invalid("the check is not valid; nothing was stored",
 			halfmark.FieldError{Field: "check.edges", Message: "leave edges out: they are computed from the file"})
@@ -85,7 +88,11 @@ func (h *handlers) checkFromRaw(c echo.Context) error {
 // same raw data and the new analysis version; otherwise nothing is written.
 func (h *handlers) recompute(c echo.Context) error {
 	ctx := c.Request().Context()
-	old, err := h.s.Checks.Check(ctx, c.Param("id"))
+	id, err := pathCheckID(c)
+	if err != nil {
+		return err
+	}
+	old, err := h.s.Checks.Check(ctx, id)
 	if err != nil {
 		return err
 	}
@@ -146,7 +153,14 @@ func sameEdges(a, b []halfmark.EdgeResult) bool {
 }
 
 func (h *handlers) listRaw(c echo.Context) error {
-	list, err := h.s.Raw.RawForCheck(c.Request().Context(), c.Param("id"))
+	id, err := pathCheckID(c)
+	if err != nil {
+		return err
+	}
+	if _, err := h.s.Checks.Check(c.Request().Context(), id); err != nil {
+		return err // an unknown check is 404, not an empty list
+	}
+	list, err := h.s.Raw.RawForCheck(c.Request().Context(), id)
 	if err != nil {
 		return err
 	}

@@ -113,7 +113,11 @@ func (h *handlers) createBatch(c echo.Context) error {
 }
 
 func (h *handlers) getCheck(c echo.Context) error {
-	chk, err := h.s.Checks.Check(c.Request().Context(), c.Param("id"))
+	id, err := pathCheckID(c)
+	if err != nil {
+		return err
+	}
+	chk, err := h.s.Checks.Check(c.Request().Context(), id)
 	if err != nil {
 		return err
 	}

@@ -31,6 +31,10 @@ func decodeJSON(c echo.Context, v any) error {
 			fmt.Sprintf("send the body as JSON with Content-Type: application/json (got %q)", ct))
 	}
 	body, err := io.ReadAll(io.LimitReader(r.Body, MaxBody+1))
+	if isTooLarge(err) {
+		return badRequest(http.StatusRequestEntityTooLarge,
+			"the request body is over the 1 MiB limit; split a large import into batches")
+	}
 	if err != nil {
 		return badRequest(http.StatusBadRequest, "the request body could not be read: "+err.Error())
 	}
@@ -126,4 +130,14 @@ func pathID(c echo.Context, name string) (int64, error) {
 		return 0, halfmark.Errorf(halfmark.ENotFound, "%s %q is not a record id", name, c.Param(name))
 	}
 	return n, nil
+}
+
+// pathCheckID reads a check id (a UUID) from the path; anything else is
+// ENotFound, never a lookup.
+func pathCheckID(c echo.Context) (string, error) {
+	id := c.Param("id")
+	if !halfmark.IsUUID(id) {
+		return "", halfmark.Errorf(halfmark.ENotFound, "%q is not a check id; check ids are UUIDs such as 0b8e3c2a-5d1f-4e8a-9a57-3f1c2d4e5f60", id)
+	}
+	return strings.ToLower(id), nil
 }

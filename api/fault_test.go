@@ -19,13 +19,25 @@ import (
 )
 
 // PostgreSQL is stopped and restarted while eight clients post checks, each
-// retrying with the same id until it gets a 2xx. Every acknowledged check is
-// stored exactly once, /readyz says not-ready while the database is down and
-// recovers by itself, and the outage is answered with 503, never 500.
+// retrying with the same id until it gets a 2xx, and four clients read. Every
+// acknowledged check is stored exactly once, /readyz says not-ready while the
+// database is down and recovers by itself, and the outage is answered with
+// 503 carrying Retry-After, never 500. The stop is "fast" (clients are
+// disconnected cleanly) or "immediate" (pg_ctl stop -m immediate: every
+// server process quits at once, connections drop mid-request).
 func TestDatabaseRestartLosesNoAcknowledgedCheck(t *testing.T) {
 	if testing.Short() {
 		t.Skip("fault test skipped in -short mode")
 	}
+	t.Run("fast", func(t *testing.T) {
+		restartUnderLoad(t, func(ctx context.Context, cl *localpg.Cluster) error { return cl.Stop(ctx) })
+	})
+	t.Run("immediate", func(t *testing.T) {
+		restartUnderLoad(t, func(ctx context.Context, cl *localpg.Cluster) error { return cl.Crash(ctx) })
+	})
+}
+
+func restartUnderLoad(t *testing.T, stopDB func(context.Context, *localpg.Cluster) error) {
 	ctx := context.Background()
 	dir := t.TempDir()
 	cl, err := localpg.Open(ctx, dir, nil)
@@ -68,6 +80,32 @@ func TestDatabaseRestartLosesNoAcknowledgedCheck(t *testing.T) {
 		stop     atomic.Bool
 	)
 	var wg sync.WaitGroup
+	noRetryAfter := 0
+	for r := 0; r < 4; r++ {
+		wg.Add(1)
+		go func() {
+			defer wg.Done()
+			for !stop.Load() {
+				req, _ := http.NewRequest("GET", srv.URL+"/api/v1/checks?limit=20", nil)
+				req.Header.Set("Authorization", "Bearer "+secret)
+				resp, err := http.DefaultClient.Do(req)
+				code := 0
+				if err == nil {
+					code = resp.StatusCode
+					if code == 503 && resp.Header.Get("Retry-After") == "" {
+						mu.Lock()
+						noRetryAfter++
+						mu.Unlock()
+					}
+					resp.Body.Close()
+				}
+				mu.Lock()
+				statuses[code]++
+				mu.Unlock()
+				time.Sleep(15 * time.Millisecond)
+			}
+		}()
+	}
 	for c := 0; c < clients; c++ {
 		wg.Add(1)
 		go func(c int) {
@@ -85,6 +123,11 @@ func TestDatabaseRestartLosesNoAcknowledgedCheck(t *testing.T) {
 					code := 0
 					if err == nil {
 						code = resp.StatusCode
+						if code == 503 && resp.Header.Get("Retry-After") == "" {
+							mu.Lock()
+							noRetryAfter++
+							mu.Unlock()
+						}
 						resp.Body.Close()
 					}
 					mu.Lock()
@@ -103,7 +146,7 @@ func TestDatabaseRestartLosesNoAcknowledgedCheck(t *testing.T) {
 		}(c)
 	}
 	time.Sleep(1500 * time.Millisecond)
-	if err := cl.Stop(ctx); err != nil {
+	if err := stopDB(ctx, cl); err != nil {
 		t.Fatal(err)
 	}
 	readyDown := 0
@@ -147,6 +190,12 @@ func TestDatabaseRestartLosesNoAcknowledgedCheck(t *testing.T) {
 	t.Logf("responses by status: %v", statuses)
 	if statuses[500] > 0 {
 		t.Errorf("%d requests got 500 during the outage; a database outage must be 503", statuses[500])
+	}
+	if statuses[503] == 0 {
+		t.Error("no request got 503 during the outage")
+	}
+	if noRetryAfter > 0 {
+		t.Errorf("%d answers 503 without Retry-After", noRetryAfter)
 	}
 	failed := 0
 	for code, n := range statuses {

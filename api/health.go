@@ -17,7 +17,11 @@ func (h *handlers) readyz(c echo.Context) error {
 	ctx, cancel := context.WithTimeout(c.Request().Context(), 2*time.Second)
 	defer cancel()
 	if err := h.s.Pinger.Ping(ctx); err != nil {
+		c.Response().Header().Set("Retry-After", "5")
 		return c.JSON(http.StatusServiceUnavailable, map[string]string{"status": "not ready", "reason": "the database does not answer"})
+	}
+	if h.s.RoleWarning != "" {
+		return c.JSON(http.StatusOK, map[string]string{"status": "ready", "warning": h.s.RoleWarning})
 	}
 	return c.JSON(http.StatusOK, map[string]string{"status": "ready"})
 }

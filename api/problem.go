@@ -56,6 +56,8 @@ func problemFor(err error) Problem {
 	switch {
 	case errors.As(err, &re):
 		return Problem{Type: typeURI(re.status), Title: http.StatusText(re.status), Status: re.status, Detail: re.msg, Errors: re.fields}
+	case halfmark.Unavailable(err):
+		return Problem{Type: typeURI(503), Title: http.StatusText(503), Status: 503, Detail: "the database is not available; retry shortly"}
 	case errors.As(err, &he):
 		st := statusOf[he.Code]
 		if st == 0 {
@@ -66,6 +68,8 @@ func problemFor(err error) Problem {
 			p.Detail = "an internal error occurred; it has been logged"
 		}
 		return p
+	case isTooLarge(err):
+		return Problem{Type: typeURI(413), Title: http.StatusText(413), Status: 413, Detail: "the request body is over the size limit"}
 	case errors.As(err, &ee):
 		msg, _ := ee.Message.(string)
 		if ee.Code == http.StatusNotFound {
@@ -116,6 +120,9 @@ func ErrorHandler(log *slog.Logger) echo.HTTPErrorHandler {
 			log.Warn("request refused: dependency unavailable", "path", c.Request().URL.Path, "method", c.Request().Method, "err", err)
 		case p.Status >= 500:
 			log.Error("request failed", "path", c.Request().URL.Path, "method", c.Request().Method, "err", err)
+		}
+		if p.Status == http.StatusServiceUnavailable {
+			c.Response().Header().Set("Retry-After", "5")
 		}
 		if p.Status == http.StatusUnauthorized {
 			c.Response().Header().Set("WWW-Authenticate", `Bearer realm="halfmark"`)

@@ -1,13 +1,23 @@
 package api
 
 import (
+	"net/http"
+
 	"github.com/labstack/echo/v4"
 
 	"halfmark"
 )
 
-// routes lists every API route in one place.
+// routes lists every API route and the server-wide middleware in one place.
+// The dashboard adds its own routes to the same server (web/routes.go);
+// /metrics is served on its own listen address (MetricsHandler).
 func (h *handlers) routes(e *echo.Echo) {
+	// Before routing, so 404s and problems carry them too.
+	e.Pre(SecurityHeaders(h.s.TrustedProxies), LimitBody)
+	if h.s.Metrics != nil {
+		e.Use(h.s.Metrics.middleware)
+	}
+
 	e.GET("/healthz", h.healthz)
 	e.GET("/readyz", h.readyz)
 	e.GET("/api/v1/openapi.yaml", h.openapi)
@@ -29,7 +39,7 @@ func (h *handlers) routes(e *echo.Echo) {
 	v1.POST("/checks/batch", h.createBatch, therapist)
 	v1.GET("/checks", h.listChecks, therapist)
 	v1.GET("/checks/:id", h.getCheck, therapist)
-	v1.POST("/checks/raw", h.checkFromRaw, therapist)
+	v1.POST("/checks/raw", h.checkFromRaw, therapist, RaiseBodyLimit(MaxUpload+1<<20))
 	v1.POST("/checks/:id/recompute", h.recompute, physicist)
 	v1.GET("/checks/:id/raw", h.listRaw, therapist)
 	v1.GET("/raw/:id", h.getRaw, therapist)
@@ -39,9 +49,10 @@ func (h *handlers) routes(e *echo.Echo) {
 	v1.GET("/series/:id/baselines", h.listBaselines, therapist)
 	v1.POST("/series/:id/baselines", h.setBaseline, physicist)
 
-	v1.POST("/analyze/profile", h.analyzeProfile, therapist)
-	v1.POST("/analyze/image", h.analyzeImage, therapist)
-	v1.POST("/analyze/picket", h.analyzePicket, therapist)
+	upload := RaiseBodyLimit(MaxUpload + 1<<20)
+	v1.POST("/analyze/profile", h.analyzeProfile, therapist, upload)
+	v1.POST("/analyze/image", h.analyzeImage, therapist, upload)
+	v1.POST("/analyze/picket", h.analyzePicket, therapist, upload)
 
 	v1.GET("/tokens", h.listTokens, admin)
 	v1.POST("/tokens", h.createToken, admin)
@@ -60,4 +71,15 @@ func (h *handlers) routes(e *echo.Echo) {
 	v1.POST("/findings/:id/resolve", h.resolveFinding, physicist)
 	v1.GET("/machines/:id/service-events", h.listServiceEvents, therapist)
 	v1.POST("/machines/:id/service-events", h.createServiceEvent, physicist)
+}
+
+// MetricsHandler serves /metrics (Prometheus text format) for the separate
+// metrics listen address (`serve --metrics-addr`), with the security
+// headers; nothing else is served there.
+func MetricsHandler(m *Metrics) http.Handler {
+	e := echo.New()
+	e.HideBanner, e.HidePort = true, true
+	e.Pre(SecurityHeaders(nil))
+	e.GET("/metrics", echo.WrapHandler(m.handler()))
+	return e
 }

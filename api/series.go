@@ -1,7 +1,9 @@
 package api
 
 import (
+	"context"
 	"net/http"
+	"sort"
 	"time"
 
 	"github.com/labstack/echo/v4"
@@ -42,7 +44,23 @@ func (h *handlers) seriesPoints(c echo.Context) error {
 	if err != nil {
 		return err
 	}
+	if cr, ok := h.s.Series.(CorrectedPointsReader); ok {
+		corrected, err := cr.CorrectedPoints(c.Request().Context(), id)
+		if err != nil {
+			return err
+		}
+		ps = append(ps, corrected...)
+		sort.SliceStable(ps, func(i, j int) bool { return ps[i].MeasuredAt.Before(ps[j].MeasuredAt) })
+	}
 	return c.JSON(http.StatusOK, map[string]any{"series_id": id, "points": nonNil(ps)})
+}
+
+// CorrectedPointsReader gives the points of a series whose checks were
+// corrected (db.DB implements it). The points route shows them, marked
+// "corrected" with "superseded_by" and "correction_reason", beside the
+// current points, so that a correction never hides a record.
+type CorrectedPointsReader interface {
+	CorrectedPoints(ctx context.Context, seriesID int64) ([]halfmark.Point, error)
 }
 
 func (h *handlers) listBaselines(c echo.Context) error {

@@ -5,6 +5,7 @@ package api
 
 import (
 	"log/slog"
+	"net"
 	"time"
 
 	"github.com/labstack/echo/v4"
@@ -26,11 +27,18 @@ type Services struct {
 	Findings    halfmark.FindingService    // findings and their lifecycle (nil: 503)
 	Evaluations halfmark.EvaluationService // the engine's stored judgements (nil: charts answer 503)
 	Raw         halfmark.RawService        // raw data behind checks
-	Metrics     *Metrics                   // nil: no /metrics
+	Metrics     *Metrics                   // nil: requests are not counted
 	Log         *slog.Logger
 	Now         func() time.Time
 
 	Penumbra halfmark.PenumbraService // penumbra model data (nil: its routes answer 503)
+
+	// RoleWarning, when not empty, says the service connects as a database
+	// role the append-only triggers do not bind; /readyz repeats it.
+	RoleWarning string
+	// TrustedProxies are the reverse proxies whose X-Forwarded-For and
+	// X-Forwarded-Proto are believed; empty: the socket's peer is the client.
+	TrustedProxies []*net.IPNet
 }
 
 // New returns an echo server with the error handler and the API routes.
@@ -46,11 +54,8 @@ func New(s Services) *echo.Echo {
 	e.HideBanner = true
 	e.HidePort = true
 	e.HTTPErrorHandler = ErrorHandler(s.Log)
+	e.IPExtractor = ClientIP(s.TrustedProxies)
 	h := &handlers{s: s}
-	if s.Metrics != nil {
-		e.Use(s.Metrics.middleware)
-		e.GET("/metrics", echo.WrapHandler(s.Metrics.handler()))
-	}
 	h.routes(e)
 	return e
 }

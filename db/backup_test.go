@@ -114,8 +114,15 @@ func TestBackupAndRestoreKeepEveryRecord(t *testing.T) {
 	if err != nil || len(ss) == 0 {
 		t.Fatal(err)
 	}
+	pos := ss[0]
+	for _, s := range ss {
+		if s.Quantity == halfmark.QPosition {
+			pos = s
+			break
+		}
+	}
 	v := 50.0
-	if err := d.SetBaseline(ctx, a, &halfmark.Baseline{SeriesID: ss[0].ID, ValueMM: &v, ValidFrom: time.Date(2025, 12, 1, 0, 0, 0, 0, time.UTC), Reason: "commissioning"}); err != nil {
+	if err := d.SetBaseline(ctx, a, &halfmark.Baseline{SeriesID: pos.ID, ValueMM: &v, ValidFrom: time.Date(2025, 12, 1, 0, 0, 0, 0, time.UTC), Reason: "commissioning"}); err != nil {
 		t.Fatal(err)
 	}
 	if _, _, err := d.CreateToken(ctx, a, "console", halfmark.RoleTherapist); err != nil {

@@ -113,3 +113,38 @@ func (d *DB) Checks(ctx context.Context, f halfmark.CheckFilter) ([]halfmark.Che
 	}
 	return out, err
 }
+
+// CorrectedPoints returns the points of a series whose checks have been
+// corrected (a later check supersedes them), marked Corrected with the
+// correcting check's id and note as the reason, in measurement order. They
+// are not in Points and never in a statistic; they are shown so that a
+// correction never makes a record vanish from view.
+func (d *DB) CorrectedPoints(ctx context.Context, seriesID int64) ([]halfmark.Point, error) {
+	rows, err := d.Pool.Query(ctx, `SELECT c.id::text, c.measured_at,
+			CASE s.quantity WHEN 'position' THEN er.iso_position_mm WHEN 'penumbra' THEN er.penumbra_mm
+				ELSE er.iso_light_position_mm - er.iso_position_mm END,
+			c.kind, c.device, c.operator, x.id::text, x.note
+		FROM series s
+		JOIN checks c ON c.machine_id = s.machine_id AND c.beam_id = s.beam_id AND c.geometry = s.geometry
+		JOIN checks x ON x.supersedes = c.id
+		CROSS JOIN LATERAL jsonb_to_recordset(c.edges)
+			AS er(edge text, iso_position_mm float8, penumbra_mm float8, iso_light_position_mm float8)
+		WHERE s.id = $1 AND er.edge = s.edge
+		  AND CASE s.quantity WHEN 'position' THEN true WHEN 'penumbra' THEN er.penumbra_mm IS NOT NULL
+		      ELSE er.iso_light_position_mm IS NOT NULL END
+		ORDER BY c.measured_at, c.created_at`, seriesID)
+	if err != nil {
+		return nil, mapErr(err)
+	}
+	out, err := pgx.CollectRows(rows, func(r pgx.CollectableRow) (halfmark.Point, error) {
+		p := halfmark.Point{Corrected: true}
+		var kind string
+		err := r.Scan(&p.CheckID, &p.MeasuredAt, &p.Value, &kind, &p.Device, &p.Operator, &p.SupersededBy, &p.CorrectionReason)
+		p.Kind = halfmark.CheckKind(kind)
+		if p.CorrectionReason == "" {
+			p.CorrectionReason = "corrected by check " + p.SupersededBy
+		}
+		return p, err
+	})
+	return out, mapErr(err)
+}

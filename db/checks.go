@@ -6,12 +6,10 @@ import (
 	"fmt"
 	"strings"
 
-	"github.com/google/uuid"
 	"github.com/jackc/pgx/v5"
 	"github.com/jackc/pgx/v5/pgconn"
 
 	"halfmark"
-	"halfmark/analysis"
 )
 
 // MaxBatch is the most checks one batch may carry.
@@ -39,63 +37,22 @@ func (d *DB) RecordBatch(ctx context.Context, a halfmark.Actor, cs []halfmark.Ch
 	return d.record(ctx, a, cs, "checks", nil)
 }
 
-// Prepare validates checks against the store (machines, beams) and fills
-// ids, isocentre positions and body hashes. It writes nothing. prefix names
-// the array in field errors ("checks"); "" for a single check.
-func (d *DB) Prepare(ctx context.Context, cs []halfmark.Check, prefix string) error {
-	now := d.Now()
-	var f halfmark.Fields
-	machines := map[int64]*halfmark.Machine{}
-	beams := map[int64]int64{} // beam id → machine id
-	ids := make(map[string]int, len(cs))
-	for i := range cs {
-		c := &cs[i]
-		p := ""
-		if prefix != "" {
-			p = fmt.Sprintf("%s[%d].", prefix, i)
+// ValidateChecks runs halfmark.ValidateChecks — the one validation of
+// checks, which also sets ids and isocentre positions — with the machines
+// and beams of the store. It writes nothing. prefix names the array in field
+// errors ("checks"); "" for a single check.
+func (d *DB) ValidateChecks(ctx context.Context, cs []halfmark.Check, prefix string) error {
+	return halfmark.ValidateChecks(cs, prefix, d.Now(), func(id int64) (halfmark.Machine, []halfmark.Beam, bool, error) {
+		m, err := d.Machine(ctx, id)
+		if halfmark.ErrorCodeOf(err) == halfmark.ENotFound {
+			return m, nil, false, nil
 		}
-		f = append(f, c.Validate(p, now)...)
-		if c.MachineID > 0 {
-			m, ok := machines[c.MachineID]
-			if !ok {
-				mm, err := d.Machine(ctx, c.MachineID)
-				if err != nil && halfmark.ErrorCodeOf(err) != halfmark.ENotFound {
-					return err
-				}
-				if err == nil {
-					m = &mm
-					bs, err := d.Beams(ctx, mm.ID)
-					if err != nil {
-						return err
-					}
-					for _, b := range bs {
-						beams[b.ID] = b.MachineID
-					}
-				}
-				machines[c.MachineID] = m
-			}
-			if m == nil {
-				f.Add(p+"machine_id", "machine %d does not exist (see GET /api/v1/machines)", c.MachineID)
-			} else {
-				if c.BeamID > 0 && beams[c.BeamID] != c.MachineID {
-					f.Add(p+"beam_id", "beam %d is not a beam of machine %d (%s); see GET /api/v1/machines/%d/beams", c.BeamID, m.ID, m.Name, m.ID)
-				}
-				if err := c.Project(m.SADcm, analysis.ProjectToIsocentre); err != nil {
-					f.Add(p+"setup", "cannot project to the isocentre plane: %v", err)
-				}
-			}
+		if err != nil {
+			return m, nil, false, err
 		}
-		if c.ID == "" {
-			c.ID = uuid.NewString()
-		}
-		c.ID = strings.ToLower(c.ID)
-		c.Supersedes = strings.ToLower(c.Supersedes)
-		if j, dup := ids[c.ID]; dup {
-			f.Add(p+"id", "repeats the id of %s[%d]; each check needs its own id", prefix, j)
-		}
-		ids[c.ID] = i
-	}
-	return f.Err("the check is not valid; nothing was stored")
+		bs, err := d.Beams(ctx, id)
+		return m, bs, err == nil, err
+	})
 }
 
 // record stores cs all-or-nothing; replays of stored ids with the same body
@@ -106,7 +63,7 @@ func (d *DB) record(ctx context.Context, a halfmark.Actor, cs []halfmark.Check, 
 	if err := halfmark.SetMethods(cs, "", prefix); err != nil {
 		return halfmark.BatchResult{}, err
 	}
-	if err := d.Prepare(ctx, cs, prefix); err != nil {
+	if err := d.ValidateChecks(ctx, cs, prefix); err != nil {
 		return halfmark.BatchResult{}, err
 	}
 	n := len(cs)
@@ -116,9 +73,9 @@ func (d *DB) record(ctx context.Context, a halfmark.Actor, cs []halfmark.Check, 
 		hashes[i] = cs[i].BodyHash()
 		res.IDs[i] = cs[i].ID
 	}
-	out, err := d.insertChecks(ctx, a, cs, hashes, res, after)
+	out, err := d.insertChecks(ctx, a, cs, hashes, res, prefix, after)
 	if errors.Is(err, errRaced) {
-		out, err = d.insertChecks(ctx, a, cs, hashes, res, after)
+		out, err = d.insertChecks(ctx, a, cs, hashes, res, prefix, after)
 	}
 	if errors.Is(err, errRaced) {
 		err = &halfmark.Error{Code: halfmark.EUnavailable, Message: "another request is storing the same check; retry", Err: err}
@@ -135,7 +92,7 @@ var errRaced = errors.New("a concurrent request stored the same check id")
 // between the read and the COPY, the unique key refuses it and the caller
 // tries once more (errRaced).
 func (d *DB) insertChecks(ctx context.Context, a halfmark.Actor, cs []halfmark.Check, hashes []string, res halfmark.BatchResult,
-	after func(tx pgx.Tx, isNew map[string]bool) error) (halfmark.BatchResult, error) {
+	prefix string, after func(tx pgx.Tx, isNew map[string]bool) error) (halfmark.BatchResult, error) {
 	n := len(cs)
 	err := d.tx(ctx, func(tx pgx.Tx) error {
 		stored, err := storedHashes(ctx, tx, res.IDs)
@@ -160,6 +117,9 @@ func (d *DB) insertChecks(ctx context.Context, a halfmark.Actor, cs []halfmark.C
 		res.Existing = n - res.Created
 		if res.Created == 0 {
 			return nil
+		}
+		if err := checkCorrectedInStore(ctx, tx, cs, isNew, prefix); err != nil {
+			return err
 		}
 		if _, err := tx.CopyFrom(ctx, pgx.Identifier{"checks"}, checkColumns, &checkRows{cs: cs, hashes: hashes, isNew: isNew, by: a.Name}); err != nil {
 			return copyErr(err)
@@ -197,6 +157,69 @@ func announceChecks(ctx context.Context, tx pgx.Tx, cs []halfmark.Check, isNew m
 	}
 	_, err := tx.Exec(ctx, `SELECT pg_notify($1, m::text) FROM unnest($2::bigint[]) m`, ChecksChannel, ids)
 	return err
+}
+
+// checkCorrectedInStore applies the store's rules of corrections to the
+// new checks: the corrected check exists (stored, or new in this batch), is
+// of the same machine and beam, and no stored check corrects it yet. The
+// rules within one batch are halfmark.ValidateChecks'.
+func checkCorrectedInStore(ctx context.Context, tx pgx.Tx, cs []halfmark.Check, isNew map[string]bool, prefix string) error {
+	var targets []string
+	inBatch := map[string]bool{}
+	for i := range cs {
+		inBatch[cs[i].ID] = isNew[cs[i].ID]
+		if isNew[cs[i].ID] && cs[i].Supersedes != "" {
+			targets = append(targets, cs[i].Supersedes)
+		}
+	}
+	if len(targets) == 0 {
+		return nil
+	}
+	type stored struct {
+		machine, beam int64
+		correctedBy   string
+	}
+	rows, err := tx.Query(ctx, `SELECT c.id::text, c.machine_id, c.beam_id, coalesce((SELECT x.id::text FROM checks x WHERE x.supersedes = c.id), '')
+		FROM checks c WHERE c.id = ANY($1::text[]::uuid[])`, targets)
+	if err != nil {
+		return err
+	}
+	found := map[string]stored{}
+	var id string
+	var st stored
+	if _, err := pgx.ForEachRow(rows, []any{&id, &st.machine, &st.beam, &st.correctedBy}, func() error { found[id] = st; return nil }); err != nil {
+		return err
+	}
+	var f halfmark.Fields
+	conflict := ""
+	for i := range cs {
+		c := &cs[i]
+		if !isNew[c.ID] || c.Supersedes == "" {
+			continue
+		}
+		field := "supersedes"
+		if prefix != "" {
+			field = fmt.Sprintf("%s[%d].supersedes", prefix, i)
+		}
+		t, ok := found[c.Supersedes]
+		switch {
+		case !ok && !inBatch[c.Supersedes]:
+			f.Add(field, "names check %s, which does not exist; a correction names a stored check of the same machine and beam", c.Supersedes)
+		case !ok:
+			// corrected within the batch: halfmark.ValidateChecks checked it
+		case t.machine != c.MachineID || t.beam != c.BeamID:
+			f.Add(field, "names a check of machine %d beam %d; a correction must be of the same machine and beam (%d, %d)", t.machine, t.beam, c.MachineID, c.BeamID)
+		case t.correctedBy != "":
+			conflict = c.Supersedes
+		}
+	}
+	if err := f.Err("the check is not valid; nothing was stored"); err != nil {
+		return err
+	}
+	if conflict != "" {
+		return halfmark.Errorf(halfmark.EConflict, "check %s has already been corrected; correct the newest version instead", conflict)
+	}
+	return nil
 }
 
 // storedHashes returns the body hash of each id already stored.

@@ -13,7 +13,6 @@ import (
 	"github.com/jackc/pgx/v5"
 	"github.com/jackc/pgx/v5/pgconn"
 	"github.com/jackc/pgx/v5/pgxpool"
-	"github.com/jackc/pgx/v5/stdlib"
 	"github.com/pressly/goose/v3"
 	"github.com/pressly/goose/v3/lock"
 
@@ -63,17 +62,11 @@ func (d *DB) Ping(ctx context.Context) error {
 	return nil
 }
 
-// Migrate applies every pending migration. A PostgreSQL session lock makes
-// two processes migrating at once safe: the second waits, then finds
-// nothing to do.
+// Migrate applies every pending migration and prepares the default runtime
+// role (MigrateWith). A PostgreSQL session lock makes two processes
+// migrating at once safe: the second waits, then finds nothing to do.
 func Migrate(ctx context.Context, url string, log io.Writer) error {
-	cfg, err := pgx.ParseConfig(url)
-	if err != nil {
-		return fmt.Errorf("database URL: %w", err)
-	}
-	sqlDB := stdlib.OpenDB(*cfg)
-	defer sqlDB.Close()
-	return migrateDB(ctx, sqlDB, log)
+	return MigrateWith(ctx, url, MigrateOptions{}, log)
 }
 
 func migrateDB(ctx context.Context, sqlDB *sql.DB, log io.Writer) error {
@@ -124,6 +117,10 @@ func mapErr(err error) error {
 			return &halfmark.Error{Code: halfmark.EConflict, Message: "a record with the same key already exists", Err: err}
 		case "23503":
 			return &halfmark.Error{Code: halfmark.EInvalid, Message: "a referenced record does not exist", Err: err}
+		case "22021", "22P05":
+			// A NUL byte or a character the database encoding cannot hold
+			// got past validation: the input's fault, never a 500.
+			return &halfmark.Error{Code: halfmark.EInvalid, Message: "the text holds a character that cannot be stored (a NUL byte or invalid UTF-8); remove it", Err: err}
 		case "42501":
 			return &halfmark.Error{Code: halfmark.EForbidden, Message: pe.Message, Err: err}
 		}
@@ -132,7 +129,7 @@ func mapErr(err error) error {
 		}
 		return err
 	}
-	if pgconn.SafeToRetry(err) || errors.Is(err, context.DeadlineExceeded) || isConnErr(err) {
+	if pgconn.SafeToRetry(err) || isConnErr(err) || halfmark.Unavailable(err) {
 		return &halfmark.Error{Code: halfmark.EUnavailable, Message: "the database is not available; retry shortly", Err: err}
 	}
 	return err

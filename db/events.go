@@ -3,8 +3,6 @@ package db
 import (
 	"context"
 	"strconv"
-	"strings"
-	"time"
 
 	"github.com/jackc/pgx/v5"
 
@@ -17,37 +15,13 @@ import (
 // "service", value and sigma NULL (estimated from the first points after
 // At), valid from At — the SQL of SetBaseline.
 func (d *DB) CreateServiceEvent(ctx context.Context, a halfmark.Actor, ev *halfmark.ServiceEvent) error {
-	var f halfmark.Fields
-	if ev.MachineID <= 0 {
-		f.Add("machine_id", "is required")
-	}
-	now := d.Now()
-	switch {
-	case ev.At.IsZero():
-		f.Add("at", "is required (RFC 3339 time of the service)")
-	case ev.At.After(now.Add(halfmark.FutureSkew)):
-		f.Add("at", "%s is in the future; record a service event once it has happened", ev.At.Format(time.RFC3339))
-	}
-	ev.Note = strings.TrimSpace(ev.Note)
-	if ev.Note == "" || len(ev.Note) > 4000 {
-		f.Add("note", "is required (up to 4000 characters): say what was done, e.g. \"X2 jaw recalibrated\"")
-	}
-	edges := make([]string, 0, len(ev.Edges))
-	for i, e := range ev.Edges {
-		id, err := halfmark.ParseEdge(e)
-		if err != nil {
-			f.Add("edges["+strconv.Itoa(i)+"]", "%s", err.Error())
-			continue
-		}
-		edges = append(edges, id.String())
-	}
-	if err := f.Err("the service event is not valid"); err != nil {
+	if err := ev.Validate(d.Now()); err != nil {
 		return err
 	}
 	if _, err := d.Machine(ctx, ev.MachineID); err != nil {
 		return err
 	}
-	ev.Edges, ev.CreatedBy = edges, a.Name
+	ev.CreatedBy = a.Name
 	return d.tx(ctx, func(tx pgx.Tx) error {
 		if err := tx.QueryRow(ctx, `INSERT INTO service_events (machine_id, at, note, edges, new_baseline, created_by)
 			VALUES ($1,$2,$3,$4,$5,$6) RETURNING id, created_at`,

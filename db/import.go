@@ -48,7 +48,7 @@ func (d *DB) ImportChecks(ctx context.Context, a halfmark.Actor, res *sheet.Resu
 		sub[j] = checks[i]
 	}
 	bad := map[int]bool{}
-	if err := d.Prepare(ctx, sub, "checks"); err != nil {
+	if err := d.ValidateChecks(ctx, sub, "checks"); err != nil {
 		he, ok := err.(*halfmark.Error)
 		if !ok || he.Code != halfmark.EInvalid {
 			return rep, err

@@ -26,6 +26,25 @@ func (d *DB) CreateMachine(ctx context.Context, a halfmark.Actor, m *halfmark.Ma
 		return err
 	}
 	err := d.tx(ctx, func(tx pgx.Tx) error {
+		// Names are unique as halfmark.MachineNameKey, which SQL cannot
+		// compute: one creator at a time compares against every name.
+		if _, err := tx.Exec(ctx, `SELECT pg_advisory_xact_lock(hashtext('halfmark machine names'))`); err != nil {
+			return err
+		}
+		rows, err := tx.Query(ctx, `SELECT name FROM machines`)
+		if err != nil {
+			return err
+		}
+		names, err := pgx.CollectRows(rows, pgx.RowTo[string])
+		if err != nil {
+			return err
+		}
+		key := halfmark.MachineNameKey(m.Name)
+		for _, n := range names {
+			if halfmark.MachineNameKey(n) == key {
+				return halfmark.Errorf(halfmark.EConflict, "a machine named %q already exists (names are compared ignoring case and Unicode form); choose another name", n)
+			}
+		}
 		c := collimatorArgs(m.Collimators)
 		row := tx.QueryRow(ctx, `INSERT INTO machines (name, sad_cm, model, serial, mlc_leaf_pairs, mlc_layout, clinical, created_by,
 			upper_jaws, upper_scd_cm, lower_scd_cm, mlc_scd_cm)
@@ -51,13 +70,24 @@ func (d *DB) Machine(ctx context.Context, id int64) (halfmark.Machine, error) {
 	return m, mapErr(err)
 }
 
-// MachineByName implements halfmark.MachineService.
+// MachineByName implements halfmark.MachineService: the exact name, else
+// the one machine whose name has the same halfmark.MachineNameKey.
 func (d *DB) MachineByName(ctx context.Context, name string) (halfmark.Machine, error) {
 	m, err := scanMachine(d.Pool.QueryRow(ctx, `SELECT `+machineCols+` FROM machines WHERE name = $1`, name))
-	if err == pgx.ErrNoRows {
-		return m, halfmark.Errorf(halfmark.ENotFound, "machine %q does not exist", name)
+	if err != pgx.ErrNoRows {
+		return m, mapErr(err)
 	}
-	return m, mapErr(err)
+	all, err := d.Machines(ctx)
+	if err != nil {
+		return halfmark.Machine{}, err
+	}
+	key := halfmark.MachineNameKey(name)
+	for _, m := range all {
+		if halfmark.MachineNameKey(m.Name) == key {
+			return m, nil
+		}
+	}
+	return halfmark.Machine{}, halfmark.Errorf(halfmark.ENotFound, "machine %q does not exist", name)
 }
 
 // Machines implements halfmark.MachineService.

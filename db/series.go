@@ -138,11 +138,14 @@ func (d *DB) SetBaseline(ctx context.Context, a halfmark.Actor, b *halfmark.Base
 	}
 	b.SetBy = a.Name
 	return d.tx(ctx, func(tx pgx.Tx) error {
-		var one int
-		if err := tx.QueryRow(ctx, `SELECT 1 FROM series WHERE id = $1 FOR UPDATE`, b.SeriesID).Scan(&one); err != nil {
+		var q string
+		if err := tx.QueryRow(ctx, `SELECT quantity FROM series WHERE id = $1 FOR UPDATE`, b.SeriesID).Scan(&q); err != nil {
 			if err == pgx.ErrNoRows {
 				return halfmark.Errorf(halfmark.ENotFound, "series %d does not exist", b.SeriesID)
 			}
+			return err
+		}
+		if err := b.ValidateFor(halfmark.Quantity(q), d.Now()); err != nil {
 			return err
 		}
 		err := tx.QueryRow(ctx, `INSERT INTO baselines (series_id, version, value_mm, sigma_mm, valid_from, source, set_by, reason)

@@ -26,10 +26,10 @@ func hashSecret(secret string) []byte {
 // CreateToken implements halfmark.AuthService.
 func (d *DB) CreateToken(ctx context.Context, a halfmark.Actor, name string, role halfmark.Role) (halfmark.Token, string, error) {
 	name = strings.TrimSpace(name)
-	var f halfmark.Fields
-	if name == "" || len(name) > 100 {
-		f.Add("name", "is required (at most 100 characters), e.g. \"console-linac-a\"")
+	if err := halfmark.ValidateTokenName(name); err != nil {
+		return halfmark.Token{}, "", err
 	}
+	var f halfmark.Fields
 	if !role.Valid() {
 		f.Add("role", "must be therapist, physicist or admin (got %q)", role)
 	}

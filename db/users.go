@@ -125,16 +125,16 @@ func (d *DB) CreateUser(ctx context.Context, a halfmark.Actor, email string, rol
 	return u, err
 }
 
-// AuthenticateUser implements halfmark.UserService. The failure counter
-// and the lock are kept in the users row, updated under a row lock so that
-// parallel guesses are all counted.
+// AuthenticateUser implements halfmark.UserService. Every refusal is the
+// same EUnauthorized; the failure count in the users row is for the
+// administrator's view and never locks the account.
 func (d *DB) AuthenticateUser(ctx context.Context, email, password string) (halfmark.User, error) {
 	wrong := halfmark.Errorf(halfmark.EUnauthorized, "the e-mail or the password is wrong")
 	e := strings.ToLower(strings.TrimSpace(email))
-	if len(password) > 4*halfmark.MaxPasswordLength {
+	if len(password) > 4*halfmark.MaxPasswordLength || halfmark.CheckText("email", e, 1, halfmark.MaxNameLength) != nil {
+		_, _ = verifyPassword(dummyHash, password) // the same time as for a real account
 		return halfmark.User{}, wrong
 	}
-	now := d.Now()
 	var u halfmark.User
 	var result error
 	err := d.tx(ctx, func(tx pgx.Tx) error {
@@ -152,32 +152,21 @@ func (d *DB) AuthenticateUser(ctx context.Context, email, password string) (half
 		if err != nil {
 			return err
 		}
-		if u.LockedUntil != nil && u.LockedUntil.After(now) {
-			result = locked(*u.LockedUntil)
-			return nil
-		}
 		ok, err := verifyPassword(hash, password)
 		if err != nil {
 			return err
 		}
 		if ok {
 			u.LockedUntil = nil
-			_, err := tx.Exec(ctx, `UPDATE users SET failed_sign_ins = 0, locked_until = NULL WHERE id = $1`, u.ID)
+			_, err := tx.Exec(ctx, `UPDATE users SET failed_sign_ins = 0, locked_until = NULL WHERE id = $1 AND failed_sign_ins <> 0`, u.ID)
 			return err
 		}
-		failed++
-		if failed < halfmark.MaxFailedSignIns {
-			result = wrong
-			_, err := tx.Exec(ctx, `UPDATE users SET failed_sign_ins = $2 WHERE id = $1`, u.ID, failed)
-			return err
-		}
-		until := now.Add(halfmark.LockoutDuration)
-		result = locked(until)
-		if _, err := tx.Exec(ctx, `UPDATE users SET failed_sign_ins = 0, locked_until = $2 WHERE id = $1`, u.ID, until); err != nil {
-			return err
-		}
-		return audit(ctx, tx, halfmark.Actor{Name: "sign-in"}, "lock", "user", strconv.FormatInt(u.ID, 10),
-			map[string]any{"failed_sign_ins": failed, "locked_until": until})
+		// Counted for the administrator's view only: the account is never
+		// locked here, so that a stranger cannot lock a user out (the
+		// dashboard slows guessing per account and address instead).
+		result = wrong
+		_, err = tx.Exec(ctx, `UPDATE users SET failed_sign_ins = failed_sign_ins + 1 WHERE id = $1`, u.ID)
+		return err
 	})
 	if err != nil {
 		return halfmark.User{}, err
@@ -186,11 +175,6 @@ func (d *DB) AuthenticateUser(ctx context.Context, email, password string) (half
 		return halfmark.User{}, result
 	}
 	return u, nil
-}
-
-func locked(until time.Time) error {
-	return halfmark.Errorf(halfmark.EForbidden, "this account is locked after %d failed sign-ins; try again after %s, or ask an administrator",
-		halfmark.MaxFailedSignIns, until.Local().Format("15:04"))
 }
 
 // User implements halfmark.UserService.
@@ -268,11 +252,8 @@ func (d *DB) SignReport(ctx context.Context, a halfmark.Actor, machineID int64, 
 	if !a.Role.Allows(halfmark.RolePhysicist) {
 		return halfmark.Errorf(halfmark.EForbidden, "signing a report needs the physicist role; you have the %s role", a.Role)
 	}
-	if _, err := time.Parse("2006-01", month); err != nil {
-		return halfmark.Invalid("the sign-off is not valid", halfmark.FieldError{Field: "month", Message: fmt.Sprintf("%q is not a month like 2026-03", month)})
-	}
-	if len(comment) > 2000 {
-		return halfmark.Invalid("the sign-off is not valid", halfmark.FieldError{Field: "comment", Message: "is longer than 2000 characters"})
+	if err := halfmark.ValidateSignOff(month, comment, d.Now()); err != nil {
+		return err
 	}
 	if _, err := d.Machine(ctx, machineID); err != nil {
 		return err

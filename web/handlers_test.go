@@ -4,6 +4,7 @@ import (
 	"bytes"
 	"fmt"
 	"html"
+	"io"
 	"mime/multipart"
 	"net/http"
 	"net/url"
@@ -69,22 +70,35 @@ func TestSignInSessionAndSignOut(t *testing.T) {
 	_, _, hdr = c2.postWithToken("/login", "/login", url.Values{"email": {"therapist@example.org"}, "password": {testPassword}, "next": {"//evil.example/"}})
 	must(t, hdr.Get("Location") == "/", "next=//evil.example/ redirected to %q", hdr.Get("Location"))
 
-	// Behind a TLS proxy the cookie is Secure.
-	req, _ := http.NewRequest(http.MethodGet, h.srv.URL+"/login", nil)
-	req.Header.Set("X-Forwarded-Proto", "https")
-	c3 := h.client()
-	tok := c3.csrf("/login")
-	form := url.Values{"email": {"therapist@example.org"}, "password": {testPassword}, "_csrf": {tok}}
-	req, _ = http.NewRequest(http.MethodPost, h.srv.URL+"/login", strings.NewReader(form.Encode()))
-	req.Header.Set("Content-Type", "application/x-www-form-urlencoded")
-	req.Header.Set("X-Forwarded-Proto", "https")
-	resp, err := c3.c.Do(req)
-	must(t, err == nil, "%v", err)
-	resp.Body.Close()
-	ck = findCookie(resp.Header, "hm_session")
-	must(t, ck != nil && ck.Secure, "cookie over https is not Secure: %+v", ck)
-	ck = findCookie(resp.Header, "_csrf")
-	must(t, ck != nil && ck.Secure && ck.HttpOnly, "CSRF cookie over https: %+v", ck)
+	// Behind a trusted TLS proxy the cookies are Secure; the same header
+	// from a client that is not a trusted proxy is ignored.
+	for _, trusted := range []bool{true, false} {
+		hp := h
+		if trusted {
+			hp = newHarness(t, harnessOpts{proxies: true})
+		}
+		req, _ := http.NewRequest(http.MethodGet, hp.srv.URL+"/login", nil)
+		req.Header.Set("X-Forwarded-Proto", "https")
+		c3 := hp.client()
+		resp, err := c3.c.Do(req)
+		must(t, err == nil, "%v", err)
+		b, _ := io.ReadAll(resp.Body)
+		resp.Body.Close()
+		ck = findCookie(resp.Header, "_csrf")
+		must(t, ck != nil && ck.Secure == trusted && ck.HttpOnly, "CSRF cookie over https (trusted proxy %v): %+v", trusted, ck)
+		m := csrfField.FindStringSubmatch(string(b))
+		must(t, m != nil, "no token on /login")
+		form := url.Values{"email": {"therapist@example.org"}, "password": {testPassword}, "_csrf": {m[1]}}
+		req, _ = http.NewRequest(http.MethodPost, hp.srv.URL+"/login", strings.NewReader(form.Encode()))
+		req.Header.Set("Content-Type", "application/x-www-form-urlencoded")
+		req.Header.Set("X-Forwarded-Proto", "https")
+		resp, err = c3.c.Do(req)
+		must(t, err == nil, "%v", err)
+		resp.Body.Close()
+		ck = findCookie(resp.Header, "hm_session")
+		must(t, ck != nil && ck.Secure == trusted, "session cookie over https (trusted proxy %v): %+v", trusted, ck)
+		must(t, (resp.Header.Get("Strict-Transport-Security") != "") == trusted, "HSTS (trusted proxy %v): %q", trusted, resp.Header.Get("Strict-Transport-Security"))
+	}
 
 	code, _, _ = c.postWithToken("/", "/logout", url.Values{})
 	must(t, code == http.StatusSeeOther, "sign-out: %d", code)
@@ -95,7 +109,7 @@ func TestSignInSessionAndSignOut(t *testing.T) {
 	c4 := h.signIn("therapist@example.org")
 	code, _, _ = c4.get("/api/v1/machines")
 	must(t, code == http.StatusOK, "API GET with a session: %d", code)
-	resp, err = c4.c.Post(h.srv.URL+"/api/v1/machines", "application/json", strings.NewReader(`{"name":"X"}`))
+	resp, err := c4.c.Post(h.srv.URL+"/api/v1/machines", "application/json", strings.NewReader(`{"name":"X"}`))
 	must(t, err == nil && resp.StatusCode == http.StatusUnauthorized, "API POST with only a session cookie: %v %d; want 401", err, resp.StatusCode)
 	resp.Body.Close()
 }
@@ -109,18 +123,46 @@ func findCookie(h http.Header, name string) *http.Cookie {
 	return nil
 }
 
-// Five wrong passwords lock the account (the rule stated in user.go).
-func TestLockOutThroughTheForm(t *testing.T) {
-	h := newHarness(t, harnessOpts{})
-	c := h.client()
-	for i := 1; i <= 4; i++ {
-		code, _, _ := c.postWithToken("/login", "/login", url.Values{"email": {"therapist@example.org"}, "password": {"nope"}})
-		must(t, code == http.StatusUnauthorized, "failure %d: %d", i, code)
+// Sign-in throttling (the rule stated in user.go): five failures for one
+// account from one address hold that address up, with the same answer as an
+// unknown account, while the same user signs in from another address; the
+// answer never says "locked". Addresses come from X-Forwarded-For through a
+// trusted proxy.
+func TestSignInThrottledPerAddressNotPerAccount(t *testing.T) {
+	h := newHarness(t, harnessOpts{proxies: true})
+	try := func(addr, email, pw string) (int, string) {
+		c := h.client()
+		tok := c.csrf("/login")
+		form := url.Values{"email": {email}, "password": {pw}, "_csrf": {tok}}
+		req, _ := http.NewRequest(http.MethodPost, h.srv.URL+"/login", strings.NewReader(form.Encode()))
+		req.Header.Set("Content-Type", "application/x-www-form-urlencoded")
+		req.Header.Set("X-Forwarded-For", addr)
+		resp, err := c.c.Do(req)
+		must(t, err == nil, "%v", err)
+		b, _ := io.ReadAll(resp.Body)
+		resp.Body.Close()
+		return resp.StatusCode, html.UnescapeString(string(b))
 	}
-	code, body, _ := c.postWithToken("/login", "/login", url.Values{"email": {"therapist@example.org"}, "password": {"nope"}})
-	must(t, code == http.StatusForbidden && strings.Contains(body, "locked"), "fifth failure: %d", code)
-	code, _, _ = c.postWithToken("/login", "/login", url.Values{"email": {"therapist@example.org"}, "password": {testPassword}})
-	must(t, code == http.StatusForbidden, "right password while locked: %d", code)
+	_, unknown := try("203.0.113.9", "nobody@example.org", "nope")
+	must(t, errorText(unknown) != "", "no error text on a refused sign-in")
+	for i := 1; i <= 5; i++ {
+		code, body := try("203.0.113.7", "therapist@example.org", "nope")
+		must(t, code == http.StatusUnauthorized && !strings.Contains(body, "locked"), "failure %d: %d", i, code)
+	}
+	code, body := try("203.0.113.7", "therapist@example.org", testPassword)
+	must(t, code == http.StatusUnauthorized, "right password from the guessing address: %d; want held up", code)
+	must(t, errorText(body) == errorText(unknown), "held-up answer %q differs from the unknown-account answer %q", errorText(body), errorText(unknown))
+	code, _ = try("198.51.100.4", "therapist@example.org", testPassword)
+	must(t, code == http.StatusSeeOther, "the user from another address: %d; want signed in", code)
+}
+
+var errorBox = regexp.MustCompile(`(?s)class="error-text"[^>]*>(.*?)<`)
+
+func errorText(body string) string {
+	if m := errorBox.FindStringSubmatch(body); m != nil {
+		return strings.TrimSpace(m[1])
+	}
+	return ""
 }
 
 // A state-changing request without a valid CSRF token is refused with

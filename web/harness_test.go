@@ -6,10 +6,12 @@ import (
 	"html"
 	"io"
 	"log/slog"
+	"net"
 	"net/http"
 	"net/http/cookiejar"
 	"net/http/httptest"
 	"net/url"
+	neturl "net/url"
 	"regexp"
 	"strings"
 	"sync"
@@ -141,17 +143,41 @@ type harnessOpts struct {
 	// engine wires the real drift engine: db.DB's StatusService,
 	// AlertService and service events, and the worker's shipped tolerances.
 	engine bool
+	// proxies trusts 127.0.0.0/8 as a reverse proxy (X-Forwarded-For and
+	// X-Forwarded-Proto are then believed).
+	proxies bool
 }
 
 func newHarness(t testing.TB, o harnessOpts) *harness {
 	t.Helper()
-	d := dbtest.Open(t)
+	ownerURL := dbtest.New(t)
 	ctx := context.Background()
+	// The dashboard runs as the runtime role, with the service's grants only.
+	const role, pw = "halfmark_app_webtest", "webtest-password"
+	if err := db.MigrateWith(ctx, ownerURL, db.MigrateOptions{AppRole: role, AppPassword: pw}, nil); err != nil {
+		t.Fatal(err)
+	}
+	u, err := neturl.Parse(ownerURL)
+	if err != nil {
+		t.Fatal(err)
+	}
+	u.User = neturl.UserPassword(role, pw)
+	d, err := db.Open(ctx, u.String())
+	if err != nil {
+		t.Fatal(err)
+	}
+	t.Cleanup(d.Close)
 	h := &harness{t: t, db: d, status: &fakeStatus{}, alerts: &fakeAlerts{}, book: &book{shipped: o.shipped}, ctx: ctx}
 	log := slog.New(slog.NewTextHandler(io.Discard, nil))
-	e := api.New(api.Services{Machines: d, Checks: d, Series: d, Auth: d, Audit: d, Pinger: d, Raw: d, Log: log})
+	var proxies []*net.IPNet
+	if o.proxies {
+		_, loopback, _ := net.ParseCIDR("127.0.0.0/8")
+		proxies = append(proxies, loopback)
+	}
+	e := api.New(api.Services{Machines: d, Checks: d, Series: d, Auth: d, Audit: d, Pinger: d, Raw: d, Log: log, TrustedProxies: proxies, Penumbra: d})
 	deps := web.Deps{Machines: d, Checks: d, Series: d, Users: d, Sessions: d, SignOffs: d, Raw: d,
-		Alerts: h.alerts, Audit: d, Tolerances: h.book, Log: log, Penumbra: d, Findings: d, Evaluations: d, Verdicts: d, Import: d, Export: d}
+		Alerts: h.alerts, Audit: d, Tolerances: h.book, Log: log, TrustedProxies: proxies, Penumbra: d,
+		Findings: d, Evaluations: d, Verdicts: d, Import: d, Export: d}
 	deps.Status = h.status
 	if o.engine {
 		deps.Status, deps.Alerts, deps.Events, deps.Tolerances = d, d, d, tolerance.Shipped()
@@ -176,7 +202,7 @@ func newHarness(t testing.TB, o harnessOpts) *harness {
 func (h *harness) machine(name string, mv ...float64) (int64, []int64) {
 	h.t.Helper()
 	a := halfmark.CLIActor("test")
-	m := halfmark.Machine{Name: name, Model: "test linac"}
+	m := halfmark.Machine{Name: name, Model: "test linac", MLCLeafPairs: 60, MLCLayout: "60"}
 	if err := h.db.CreateMachine(h.ctx, a, &m); err != nil {
 		h.t.Fatal(err)
 	}

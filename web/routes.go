@@ -11,38 +11,21 @@ import (
 	"halfmark"
 )
 
-// routes lists every dashboard route in one place.
+// routes lists every dashboard route and its middleware in one place. The
+// server-wide middleware (security headers, body limit, client address) and
+// the API routes are in api/routes.go; /metrics has its own address.
+//
+// Each dashboard route runs: headers → csrf → session → [role] → handler.
+// Upload routes run session → role → larger body limit → csrf, so that no
+// form is parsed for a caller who is not signed in.
 func (s *server) routes(e *echo.Echo) error {
-	cfg := middleware.CSRFConfig{
-		TokenLookup:    "form:_csrf",
-		CookieName:     "_csrf",
-		CookiePath:     "/",
-		CookieHTTPOnly: true,
-		CookieSameSite: http.SameSiteStrictMode,
-		ErrorHandler: func(err error, c echo.Context) error {
-			return s.fail(c, http.StatusForbidden, "This form has expired or did not come from this site (no valid CSRF token). Reload the page and submit it again.")
-		},
-	}
-	csrfPlain := middleware.CSRFWithConfig(cfg)
-	cfg.CookieSecure = true
-	csrfTLS := middleware.CSRFWithConfig(cfg)
-	// The CSRF cookie is Secure when the request came over TLS.
-	csrf := func(next echo.HandlerFunc) echo.HandlerFunc {
-		plain, tls := csrfPlain(next), csrfTLS(next)
-		return func(c echo.Context) error {
-			if secure(c) {
-				return tls(c)
-			}
-			return plain(c)
-		}
-	}
 	static, err := fs.Sub(assets, "static")
 	if err != nil {
 		return err
 	}
 	e.Use(s.apiActor)
 
-	common := []echo.MiddlewareFunc{s.headers, csrf, s.session}
+	common := []echo.MiddlewareFunc{s.headers, s.csrf, s.session}
 	g := &router{e: e, common: common}
 	// Static files need no session or CSRF cookie: only the headers.
 	e.GET("/static/*", echo.WrapHandler(http.StripPrefix("/static/", http.FileServer(http.FS(static)))), s.headers)
@@ -65,14 +48,35 @@ func (s *server) routes(e *echo.Echo) error {
 	g.GET("/entry", s.entryPage, ther)
 	g.POST("/entry", s.entrySave, ther)
 	g.GET("/monthly", s.monthly, ther)
-	g.POST("/monthly/analyze", s.monthlyAnalyze, ther)
-	g.POST("/monthly/save", s.monthlySave, ther)
+	upload := []echo.MiddlewareFunc{s.headers, s.session, ther, raiseBodyLimit(maxUploadFormBytes), s.csrf}
+	e.POST("/monthly/analyze", s.monthlyAnalyze, upload...)
+	e.POST("/monthly/save", s.monthlySave, upload...)
 	g.GET("/raw/:id", s.rawDownload, ther)
 	g.GET("/import", s.importPage, ther)
 	g.POST("/import/preview", s.importPreview, phys)
 	g.POST("/import/store", s.importStore, phys)
 	g.GET("/export", s.exportDownload, ther)
 	return nil
+}
+
+// maxUploadFormBytes bounds an upload form: the file (maxUploadBytes), or
+// on save its base64 copy (4/3 of it), plus the other fields.
+const maxUploadFormBytes = maxUploadBytes*4/3 + 1<<20
+
+// raiseBodyLimit lets an upload route read up to n bytes of body (the
+// server-wide limit, api.LimitBody, stays for every other route).
+func raiseBodyLimit(n int64) echo.MiddlewareFunc {
+	return func(next echo.HandlerFunc) echo.HandlerFunc {
+		return func(c echo.Context) error {
+			if b, ok := c.Request().Body.(interface{ RaiseLimit(int64) }); ok {
+				b.RaiseLimit(n)
+			}
+			if c.Request().ContentLength > n {
+				return echo.NewHTTPError(http.StatusRequestEntityTooLarge)
+			}
+			return next(c)
+		}
+	}
 }
 
 // router adds routes with the dashboard's middleware in front of each, so

@@ -1,6 +1,7 @@
 package web
 
 import (
+	"net"
 	"net/http"
 	"net/url"
 	"strings"
@@ -27,6 +28,7 @@ func (s *server) headers(next echo.HandlerFunc) echo.HandlerFunc {
 		h.Set("X-Content-Type-Options", "nosniff")
 		h.Set("Referrer-Policy", "same-origin")
 		h.Set("X-Frame-Options", "DENY")
+		c.Set(tlsKey, s.secure(c))
 		if !strings.HasPrefix(c.Request().URL.Path, "/static/") {
 			h.Set("Cache-Control", "no-store")
 		}
@@ -34,10 +36,37 @@ func (s *server) headers(next echo.HandlerFunc) echo.HandlerFunc {
 	}
 }
 
-// secure reports whether the request reached us over TLS, directly or
-// through a proxy that says so.
+// tlsKey holds, for handlers, what s.secure said of the request.
+const tlsKey = "halfmark.web.tls"
+
+// secure reports what the headers middleware found: whether the request
+// came over TLS (cookies are then Secure).
 func secure(c echo.Context) bool {
-	return c.Request().TLS != nil || strings.EqualFold(c.Request().Header.Get("X-Forwarded-Proto"), "https")
+	v, _ := c.Get(tlsKey).(bool)
+	return v || c.Request().TLS != nil
+}
+
+// secure reports whether the request reached us over TLS, directly or
+// through a trusted proxy (Deps.TrustedProxies) that says so.
+func (s *server) secure(c echo.Context) bool {
+	r := c.Request()
+	if r.TLS != nil {
+		return true
+	}
+	if !strings.EqualFold(r.Header.Get("X-Forwarded-Proto"), "https") {
+		return false
+	}
+	host, _, err := net.SplitHostPort(r.RemoteAddr)
+	if err != nil {
+		host = r.RemoteAddr
+	}
+	ip := net.ParseIP(host)
+	for _, n := range s.d.TrustedProxies {
+		if ip != nil && n.Contains(ip) {
+			return true
+		}
+	}
+	return false
 }
 
 // session loads the signed-in user, if any, from the session cookie.
@@ -76,7 +105,7 @@ func (s *server) sessionUser(c echo.Context, token string) (halfmark.User, error
 
 func (s *server) setSessionCookie(c echo.Context, token string, maxAge int) {
 	c.SetCookie(&http.Cookie{Name: sessionCookie, Value: token, Path: "/", MaxAge: maxAge,
-		HttpOnly: true, SameSite: http.SameSiteLaxMode, Secure: secure(c)})
+		HttpOnly: true, SameSite: http.SameSiteLaxMode, Secure: s.secure(c)})
 }
 
 // user returns the signed-in user, or nil.
@@ -138,20 +167,30 @@ func (s *server) loginPage(c echo.Context) error {
 	return s.render(c, http.StatusOK, "login", "Sign in", loginData{Next: localPath(c.QueryParam("next"))})
 }
 
+// wrongSignIn is the one answer to every refused sign-in: unknown e-mail,
+// wrong password, or an address held up by signInGuard.
+const wrongSignIn = "The e-mail or the password is wrong. After several failures, sign-ins from this address are slowed down; wait a minute before trying again."
+
 func (s *server) login(c echo.Context) error {
 	email, pw, next := c.FormValue("email"), c.FormValue("password"), localPath(c.FormValue("next"))
+	shown := email
+	if halfmark.CheckText("email", email, 0, 320) != nil {
+		shown = "" // never echo control characters or invalid UTF-8 back
+	}
+	addr, now := c.RealIP(), s.d.Now()
+	if s.guard.blocked(email, addr, now) {
+		return s.render(c, http.StatusUnauthorized, "login", "Sign in", loginData{Email: shown, Next: next, Error: wrongSignIn})
+	}
 	u, err := s.d.Users.AuthenticateUser(c.Request().Context(), email, pw)
 	if err != nil {
 		code := halfmark.ErrorCodeOf(err)
-		if code != halfmark.EUnauthorized && code != halfmark.EForbidden {
+		if code != halfmark.EUnauthorized && code != halfmark.EForbidden && code != halfmark.EInvalid {
 			return err
 		}
-		status := http.StatusUnauthorized
-		if code == halfmark.EForbidden {
-			status = http.StatusForbidden
-		}
-		return s.render(c, status, "login", "Sign in", loginData{Email: email, Next: next, Error: messageOf(err)})
+		s.guard.failed(email, addr, now)
+		return s.render(c, http.StatusUnauthorized, "login", "Sign in", loginData{Email: shown, Next: next, Error: wrongSignIn})
 	}
+	s.guard.succeeded(email, addr)
 	token, err := s.d.Sessions.CreateSession(c.Request().Context(), u.ID)
 	if err != nil {
 		return err
@@ -173,12 +212,40 @@ func (s *server) logout(c echo.Context) error {
 }
 
 // localPath keeps a redirect target on this site: a path starting with a
-// single slash; anything else becomes "/".
+// single slash, with no backslash, no control character or space (browsers
+// drop tabs and newlines, so "/\t/evil.example" would read as
+// "//evil.example"), and still so after percent-decoding; anything else
+// becomes "/". WHATWG URL Standard, basic URL parser (tab and newline
+// removal, backslash as slash in special schemes).
 func localPath(p string) string {
-	if p == "" || p[0] != '/' || strings.HasPrefix(p, "//") || strings.HasPrefix(p, "/\\") || strings.ContainsAny(p, "\r\n") {
-		return "/"
+	d := p
+	for i := 0; i < 4; i++ {
+		if !sameSitePath(d) {
+			return "/"
+		}
+		next, err := url.PathUnescape(d)
+		if err != nil {
+			return "/"
+		}
+		if next == d {
+			return p
+		}
+		d = next
 	}
-	return p
+	return "/"
+}
+
+func sameSitePath(p string) bool {
+	if p == "" || p[0] != '/' || strings.HasPrefix(p, "//") {
+		return false
+	}
+	for _, r := range p {
+		if r <= ' ' || r == 0x7f || r == '\\' || (r >= 0x80 && r <= 0x9f) {
+			return false
+		}
+	}
+	u, err := url.Parse(p)
+	return err == nil && u.Scheme == "" && u.Host == "" && u.User == nil
 }
 
 // messageOf is the part of an error that is written for people.

@@ -5,20 +5,22 @@
 // under a Content-Security-Policy without 'unsafe-inline'.
 //
 // Sign-in and sessions. Users sign in with an e-mail and a password
-// (argon2id hashes, lock-out after halfmark.MaxFailedSignIns failures; see
-// db/users.go). Sessions are kept on the server, in PostgreSQL (table
+// (argon2id hashes; see db/users.go). Failures slow down further tries per
+// account and address and per address (signInGuard), never per account
+// alone, and every refusal reads the same. Sessions are kept on the server, in PostgreSQL (table
 // sessions): the browser holds only a random 256-bit token in the HttpOnly,
-// SameSite=Lax cookie "hm_session" (Secure when the request came over TLS or
-// with X-Forwarded-Proto https), and the store keeps the token's SHA-256.
+// SameSite=Lax cookie "hm_session" (Secure when the request came over TLS,
+// directly or through a trusted proxy), and the store keeps the token's SHA-256.
 // A session ends after Deps.SessionIdle without a request (default 12 h),
 // after Deps.SessionMaxAge in any case (default 7 days), or at sign-out,
 // which deletes the row — so sign-out and revocation take effect at once,
 // unlike a signed cookie.
 //
-// Forms. Every state-changing request passes echo's CSRF middleware: a
-// browser that sends Sec-Fetch-Site same-origin is trusted, anything else
-// must carry the form's _csrf token matching the _csrf cookie; a request
-// without a valid token is refused with 403.
+// Forms. Every state-changing request must carry the form's _csrf token,
+// which is bound to the browser's session (csrf.go); a request without the
+// token of its own session is refused with 403. Bodies are limited before
+// any form is read (api.LimitBody); upload forms get a larger limit only
+// after the session and role checks.
 //
 // Every page's footer carries the safety caution: results support, never
 // replace, a qualified medical physicist; tolerances are set locally.
@@ -28,6 +30,7 @@ import (
 	"context"
 	"errors"
 	"log/slog"
+	"net"
 	"time"
 
 	"github.com/labstack/echo/v4"
@@ -76,6 +79,10 @@ type Deps struct {
 	// Penumbra reads penumbra data for the beam page (nil: the page says
 	// the model is not available).
 	Penumbra halfmark.PenumbraService
+	// TrustedProxies are the reverse proxies whose X-Forwarded-Proto is
+	// believed (Secure cookies); the client address comes from the echo
+	// server's IPExtractor.
+	TrustedProxies []*net.IPNet
 }
 
 // Register adds the dashboard's routes, with their security headers,
@@ -111,4 +118,5 @@ type server struct {
 	tpl      templates
 	sessions sessionCache
 	status   statusCache
+	guard    signInGuard
 }

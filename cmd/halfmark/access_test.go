@@ -9,6 +9,7 @@ import (
 	"net/http/cookiejar"
 	"net/http/httptest"
 	"net/url"
+	"regexp"
 	"strings"
 	"testing"
 
@@ -116,7 +117,7 @@ func TestAccessControlMatrix(t *testing.T) {
 		"POST /machines/:id/report/sign": "physicist", "GET /series/:id": "therapist", "POST /series/:id/baseline": "physicist",
 		"POST /series/:id/period": "physicist", "POST /alerts/:id/acknowledge": "physicist", "POST /alerts/:id/resolve": "physicist",
 		"GET /entry": "therapist", "POST /entry": "therapist", "GET /monthly": "therapist", "POST /monthly/analyze": "therapist",
-		"POST /monthly/save": "therapist", "GET /raw/:id": "therapist", "GET /metrics": "",
+		"POST /monthly/save": "therapist", "GET /raw/:id": "therapist",
 		"PATCH /api/v1/machines/:id": "admin", "GET /api/v1/beams/:id/penumbra-model": "therapist",
 		"POST /api/v1/beams/:id/penumbra-model/predict": "therapist", "GET /machines/:id/beams/:beam": "therapist",
 		"GET /import": "therapist", "POST /import/preview": "physicist", "POST /import/store": "physicist", "GET /export": "therapist",
@@ -187,6 +188,8 @@ func TestAccessControlMatrix(t *testing.T) {
 	t.Logf("%d routes, %d route × caller requests", len(routes), checked)
 }
 
+var csrfInForm = regexp.MustCompile(`name="_csrf" value="([^"]*)"`)
+
 // call sends one request as the caller. Dashboard POSTs carry a valid CSRF
 // token (fetched with the caller's own cookies) so that the role decides.
 func call(t *testing.T, base, method, path string, cl access, web bool) (int, string) {
@@ -199,13 +202,18 @@ func call(t *testing.T, base, method, path string, cl access, web bool) (int, st
 	client := &http.Client{Jar: jar, CheckRedirect: func(*http.Request, []*http.Request) error { return http.ErrUseLastResponse }}
 	form := url.Values{}
 	if web && method == http.MethodPost {
-		resp, err := client.Get(base + "/login")
-		if err == nil {
+		// The token is bound to the session: take it from a form the
+		// caller's own cookies get (the sign-out form on /, or /login).
+		for _, page := range []string{"/", "/login"} {
+			resp, err := client.Get(base + page)
+			if err != nil {
+				continue
+			}
+			b, _ := io.ReadAll(resp.Body)
 			resp.Body.Close()
-		}
-		for _, ck := range jar.Cookies(u) {
-			if ck.Name == "_csrf" {
-				form.Set("_csrf", ck.Value)
+			if m := csrfInForm.FindSubmatch(b); m != nil {
+				form.Set("_csrf", string(m[1]))
+				break
 			}
 		}
 	}
@@ -242,7 +250,7 @@ func servedHandler(t *testing.T) (*db.DB, http.Handler, *httptest.Server) {
 	if err != nil {
 		t.Fatal(err)
 	}
-	h, err := newHandler(d, wk, log, nil)
+	h, err := newHandler(d, wk, log, nil, httpConfig{})
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -273,5 +281,67 @@ func TestSignInRateLimit(t *testing.T) {
 	}
 	if limited == 0 {
 		t.Fatal("60 sign-in attempts in a row were never limited")
+	}
+}
+
+// Rotating X-Forwarded-For does not get round the sign-in limit: with no
+// trusted proxy configured, the client address is the socket's peer (the
+// outside probe bypassed the limit this way).
+func TestSignInRateLimitIgnoresForwardedFor(t *testing.T) {
+	_, _, srv := servedHandler(t)
+	limited := 0
+	for i := 0; i < 60; i++ {
+		form := url.Values{"email": {fmt.Sprintf("nobody%d@example.org", i)}, "password": {"wrong password"}}
+		req, _ := http.NewRequest(http.MethodPost, srv.URL+"/login", strings.NewReader(form.Encode()))
+		req.Header.Set("Content-Type", "application/x-www-form-urlencoded")
+		req.Header.Set("X-Forwarded-For", fmt.Sprintf("198.51.100.%d", i+1))
+		req.Header.Set("X-Real-IP", fmt.Sprintf("203.0.113.%d", i+1))
+		resp, err := http.DefaultClient.Do(req)
+		if err != nil {
+			t.Fatal(err)
+		}
+		io.Copy(io.Discard, resp.Body)
+		resp.Body.Close()
+		if resp.StatusCode == http.StatusTooManyRequests {
+			limited++
+		}
+	}
+	if limited == 0 {
+		t.Fatal("60 sign-in attempts with a new X-Forwarded-For each were never limited")
+	}
+}
+
+// The served handler: security headers on API answers, problems and 404s
+// of both halves; /metrics is not on the service address; a large body
+// without credentials is refused before any form is read.
+func TestServedHandlerHeadersAndLimits(t *testing.T) {
+	_, _, srv := servedHandler(t)
+	for _, p := range []string{"/api/v1/machines", "/api/v1/no-such", "/no-such", "/healthz", "/login", "/metrics"} {
+		resp, err := http.Get(srv.URL + p)
+		if err != nil {
+			t.Fatal(err)
+		}
+		io.Copy(io.Discard, resp.Body)
+		resp.Body.Close()
+		h := resp.Header
+		if !strings.Contains(h.Get("Content-Security-Policy"), "frame-ancestors 'none'") || h.Get("X-Content-Type-Options") != "nosniff" || h.Get("Referrer-Policy") == "" {
+			t.Errorf("%s (%d): headers %v", p, resp.StatusCode, h)
+		}
+		if p == "/metrics" && resp.StatusCode != http.StatusNotFound {
+			t.Errorf("/metrics on the service address: %d", resp.StatusCode)
+		}
+	}
+	for _, p := range []string{"/logout", "/entry"} {
+		req, _ := http.NewRequest(http.MethodPost, srv.URL+p, strings.NewReader(strings.Repeat("a", 2<<20)))
+		req.Header.Set("Content-Type", "multipart/form-data; boundary=x")
+		resp, err := http.DefaultClient.Do(req)
+		if err != nil {
+			continue
+		}
+		io.Copy(io.Discard, resp.Body)
+		resp.Body.Close()
+		if resp.StatusCode != http.StatusRequestEntityTooLarge {
+			t.Errorf("2 MiB to %s without credentials: %d; want 413", p, resp.StatusCode)
+		}
 	}
 }

@@ -50,20 +50,32 @@ func parseFlags(fs *flag.FlagSet, e env) error {
 
 // dbFlags are the flags of every command that needs the database.
 type dbFlags struct {
-	url     string
-	dataDir string
+	url         string
+	dataDir     string
+	appRole     string
+	appPassword string // set by migrate only
+	ownerURL    string // set by migrate only: the owner's URL
+	migrating   bool   // migrate runs as the owner: no runtime-role check
 }
 
 func (d *dbFlags) register(fs *flag.FlagSet) {
 	fs.StringVar(&d.url, "database-url", "", "PostgreSQL URL (also DATABASE_URL); empty: a private local cluster under --data-dir")
 	fs.StringVar(&d.dataDir, "data-dir", "./halfmark-data", "directory of the private local PostgreSQL cluster (used when no database URL is set)")
+	fs.StringVar(&d.appRole, "app-role", db.DefaultAppRole, "database role the service runs as: owns nothing, holds only the grants it needs (migrate creates it)")
 }
+
+// requireRuntimeRoleEnv, set to 1, makes a service refuse to start when it
+// connects as a superuser or as the owner of the tables.
+const requireRuntimeRoleEnv = "HALFMARK_REQUIRE_RUNTIME_ROLE"
 
 // store is an open database with what it takes to close it.
 type store struct {
 	*db.DB
 	url     string
 	cluster *localpg.Cluster
+	// roleWarning is "" when the connection's role is bound by the
+	// append-only triggers (see db.RoleInfo.Warning).
+	roleWarning string
 }
 
 // Close closes the pool and stops a cluster this process started.
@@ -77,13 +89,22 @@ func (s *store) Close() {
 }
 
 // openStore connects to the configured database, or starts (or joins) the
-// private local cluster, then applies migrations.
+// private local cluster, then applies migrations. The private cluster is
+// migrated as its superuser and used as the runtime role (d.appRole, with
+// the password kept beside the cluster). With a URL, migrations run only
+// when its role owns the schema; a service connected as a superuser or owner
+// is told so on progress, and refused when HALFMARK_REQUIRE_RUNTIME_ROLE=1.
 func openStore(ctx context.Context, e env, d dbFlags, progress io.Writer) (*store, error) {
 	url := d.url
+	if d.ownerURL != "" {
+		url = d.ownerURL
+	}
 	if url == "" {
 		url = e.getenv("DATABASE_URL")
 	}
 	s := &store{}
+	opts := db.MigrateOptions{AppRole: d.appRole, AppPassword: d.appPassword}
+	appURL := url
 	if url == "" {
 		if progress != nil {
 			fmt.Fprintf(progress, "no database URL set: using the private PostgreSQL cluster in %s\n", d.dataDir)
@@ -98,18 +119,39 @@ func openStore(ctx context.Context, e env, d dbFlags, progress io.Writer) (*stor
 		}
 		s.cluster = c
 		url = c.URL("halfmark")
+		if opts.AppPassword, err = c.AppPassword(); err == nil {
+			appURL, err = c.AppURL("halfmark", opts.AppRole)
+		}
+		if err != nil {
+			s.stopCluster()
+			return nil, err
+		}
 	}
-	s.url = url
-	if err := db.Migrate(ctx, url, progress); err != nil {
+	s.url = appURL
+	if err := db.MigrateWith(ctx, url, opts, progress); err != nil {
 		s.stopCluster()
 		return nil, err
 	}
-	d2, err := db.Open(ctx, url)
+	d2, err := db.Open(ctx, appURL)
 	if err != nil {
 		s.stopCluster()
 		return nil, err
 	}
 	s.DB = d2
+	role, err := d2.Role(ctx)
+	if err != nil {
+		s.Close()
+		return nil, err
+	}
+	if s.roleWarning = role.Warning(); s.roleWarning != "" && !d.migrating {
+		if e.getenv(requireRuntimeRoleEnv) == "1" {
+			s.Close()
+			return nil, fmt.Errorf("%s=1 and %s; set HALFMARK_DATABASE_URL to the runtime role's URL (run `halfmark migrate` with the owner's URL first)", requireRuntimeRoleEnv, s.roleWarning)
+		}
+		if progress != nil {
+			fmt.Fprintf(progress, "warning: %s\n", s.roleWarning)
+		}
+	}
 	return s, nil
 }
 

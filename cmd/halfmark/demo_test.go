@@ -162,7 +162,7 @@ func oneJudge(t *testing.T, ctx context.Context, d *db.DB) {
 	if err != nil {
 		t.Fatal(err)
 	}
-	h, err := newHandler(d, wk, log, nil)
+	h, err := newHandler(d, wk, log, nil, httpConfig{})
 	if err != nil {
 		t.Fatal(err)
 	}

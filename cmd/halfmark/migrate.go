@@ -6,9 +6,11 @@ import (
 )
 
 func cmdMigrate(ctx context.Context, e env) error {
-	var d dbFlags
+	d := dbFlags{migrating: true}
 	fs := newFlags(e, "migrate", "migrate [flags]")
 	d.register(fs)
+	fs.StringVar(&d.appPassword, "app-password", "", "password to set for the runtime role (--app-role); empty: leave it as it is")
+	fs.StringVar(&d.ownerURL, "owner-database-url", "", "PostgreSQL URL of the schema owner to migrate with; empty: --database-url")
 	if err := parseFlags(fs, e); err != nil {
 		return err
 	}

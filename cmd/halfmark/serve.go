@@ -19,15 +19,19 @@ import (
 
 // serveFlags are shared by serve, api, worker and demo.
 type serveFlags struct {
-	addr   string
-	db     dbFlags
-	log    logFlags
-	worker workerFlags
+	addr           string
+	metricsAddr    string
+	trustedProxies string
+	db             dbFlags
+	log            logFlags
+	worker         workerFlags
 }
 
 func (f *serveFlags) register(e env, name string) *flag.FlagSet {
 	fs := newFlags(e, name, name+" [flags]")
 	fs.StringVar(&f.addr, "addr", "127.0.0.1:8080", "listening address of the API and dashboard")
+	fs.StringVar(&f.metricsAddr, "metrics-addr", "", "listening address of /metrics (Prometheus); empty: no metrics served")
+	fs.StringVar(&f.trustedProxies, "trusted-proxies", "", "comma-separated addresses or CIDR ranges of reverse proxies whose X-Forwarded-For/-Proto are believed; empty: the socket's peer is the client")
 	f.db.register(fs)
 	f.log.register(fs)
 	f.worker.register(fs, name == "worker")
@@ -70,16 +74,33 @@ func runParts(ctx context.Context, e env, st *store, f serveFlags, log *slog.Log
 	if f.worker.once {
 		return wk.RunOnce(ctx)
 	}
-	errc := make(chan error, 2)
-	var srv *http.Server
+	errc := make(chan error, 3)
+	if st.roleWarning != "" {
+		log.Warn(st.roleWarning)
+	}
+	var srv, msrv *http.Server
 	if withHTTP {
+		proxies, err := api.ParseTrustedProxies(f.trustedProxies)
+		if err != nil {
+			return exitUsage{fmt.Errorf("--trusted-proxies: %w", err)}
+		}
 		ln, err := net.Listen("tcp", f.addr)
 		if err != nil {
 			return fmt.Errorf("listen on %s: %w (is another halfmark running? choose another --addr)", f.addr, err)
 		}
-		h, err := newHandler(st.DB, wk, log, metrics)
+		h, err := newHandler(st.DB, wk, log, metrics, httpConfig{roleWarning: st.roleWarning, trustedProxies: proxies})
 		if err != nil {
 			return err
+		}
+		if f.metricsAddr != "" {
+			mln, err := net.Listen("tcp", f.metricsAddr)
+			if err != nil {
+				ln.Close()
+				return fmt.Errorf("listen on %s: %w (choose another --metrics-addr)", f.metricsAddr, err)
+			}
+			msrv = &http.Server{Handler: api.MetricsHandler(metrics), ReadHeaderTimeout: 10 * time.Second}
+			fmt.Fprintf(e.stdout, "Metrics at http://%s/metrics\n", mln.Addr())
+			go func() { errc <- msrv.Serve(mln) }()
 		}
 		srv = &http.Server{Handler: h, ReadHeaderTimeout: 10 * time.Second, ReadTimeout: 120 * time.Second}
 		fmt.Fprintf(e.stdout, "Halfmark is listening on http://%s (dashboard at /, API under /api/v1)\n", ln.Addr())
@@ -114,18 +135,29 @@ func runParts(ctx context.Context, e env, st *store, f serveFlags, log *slog.Log
 		defer cancel()
 		_ = srv.Shutdown(sctx)
 	}
+	if msrv != nil {
+		_ = msrv.Close()
+	}
 	<-wdone // the schedule stops after its running jobs finish
 	return nil
 }
 
-// newHandler is the whole HTTP surface: the JSON API, the dashboard and
-// /metrics on one echo server.
-func newHandler(d *db.DB, wk *worker.Worker, log *slog.Logger, metrics *api.Metrics) (http.Handler, error) {
+// httpConfig is the HTTP server's configuration beyond its services.
+type httpConfig struct {
+	roleWarning    string       // the database role is not bound by the append-only triggers
+	trustedProxies []*net.IPNet // reverse proxies whose forwarding headers are believed
+}
+
+// newHandler is the whole HTTP surface: the JSON API and the dashboard on
+// one echo server (routes in api/routes.go and web/routes.go). /metrics is
+// served on its own address (api.MetricsHandler).
+func newHandler(d *db.DB, wk *worker.Worker, log *slog.Logger, metrics *api.Metrics, cfg httpConfig) (http.Handler, error) {
 	h := api.New(api.Services{Machines: d, Checks: d, Series: d, Auth: d, Audit: d, Pinger: d, Log: log,
-		Alerts: d, Status: d, Events: d, Findings: d, Evaluations: d, Raw: d, Metrics: metrics, Penumbra: d})
+		Alerts: d, Status: d, Events: d, Findings: d, Evaluations: d, Raw: d, Metrics: metrics, Penumbra: d,
+		RoleWarning: cfg.roleWarning, TrustedProxies: cfg.trustedProxies})
 	err := web.Register(h, web.Deps{Machines: d, Checks: d, Series: d, Users: d, Sessions: d, SignOffs: d,
 		Raw: d, Status: d, Alerts: d, Events: d, Audit: d, Tolerances: liveBook{wk}, Log: log, Penumbra: d, Import: d, Export: d,
-		Findings: d, Evaluations: d})
+		Findings: d, Evaluations: d, Verdicts: d, TrustedProxies: cfg.trustedProxies})
 	return h, err
 }
 

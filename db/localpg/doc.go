@@ -10,10 +10,15 @@
 //	dataDir/halfmark.lock   flock(2) lock held while a process checks, initialises or starts the cluster
 //	dataDir/halfmark-port   TCP port of the last start, reused when still free
 //
-// The server listens only on 127.0.0.1, on a free port (never 5432), with
-// trust authentication for the superuser "postgres": anyone who can open a TCP
-// connection to 127.0.0.1 on this machine can use it, so it suits a single-user
-// workstation or a container, not a shared host.
+//	dataDir/superuser.password  the superuser's random password (0600)
+//	dataDir/app.password        the runtime role's random password (0600)
+//
+// The server listens only on 127.0.0.1, on a free port (never 5432), and
+// asks every client for a password (SCRAM-SHA-256, on TCP and on the unix
+// socket). The passwords are random and kept in 0600 files owned by the user
+// that runs Halfmark, so another OS user on the machine can reach the port
+// but cannot log in. A cluster made by an older version with trust
+// authentication is moved to passwords at its next Open.
 //
 // initdb and postgres refuse to run as root, so when the calling process runs
 // as root the binaries run as the owner of an existing cluster or, for a new

@@ -59,7 +59,7 @@ func (c *Cluster) join(ctx context.Context) (bool, error) {
 			}
 			return false, nil
 		case pf.port > 0 && (pf.status == "ready" || pf.status == "standby" || pf.status == ""):
-			err := ping(ctx, clusterURL(pf.port, "postgres"))
+			err := ping(ctx, c.superURL(pf.port, "postgres"))
 			if err == nil {
 				c.Port = pf.port
 				fmt.Fprintf(c.logw, "localpg: joined the PostgreSQL server already running on 127.0.0.1:%d (pid %d)\n", pf.port, pf.pid)
@@ -102,7 +102,12 @@ func (c *Cluster) initIfNeeded(ctx context.Context) error {
 	if err := c.run.chown(tmp); err != nil {
 		return err
 	}
-	args := []string{"-D", tmp, "-U", Superuser, "--auth=trust", "-E", "UTF8", "--locale=C"}
+	pwfile, err := c.initPasswordFile()
+	if err != nil {
+		return err
+	}
+	defer os.Remove(pwfile)
+	args := []string{"-D", tmp, "-U", Superuser, "--auth=scram-sha-256", "--pwfile=" + pwfile, "-E", "UTF8", "--locale=C"}
 	if c.opts.noSync {
 		args = append(args, "--no-sync")
 	}
@@ -243,7 +248,7 @@ func (c *Cluster) launchChild(ctx context.Context, port int) error {
 // closes if the server process exits first.
 func (c *Cluster) waitReady(ctx context.Context, port int, done <-chan struct{}) error {
 	deadline := time.Now().Add(startTimeout)
-	connURL := clusterURL(port, "postgres")
+	connURL := c.superURL(port, "postgres")
 	for {
 		err := ping(ctx, connURL)
 		if err == nil {
