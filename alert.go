@@ -133,12 +133,18 @@ type StatusService interface {
 // NewBaseline is set, the named edges' series (all series when Edges is
 // empty) start a new baseline period at At; earlier points stay.
 type ServiceEvent struct {
-	ID          int64     `json:"id"`
-	MachineID   int64     `json:"machine_id"`
-	At          time.Time `json:"at"`
-	Note        string    `json:"note"`
-	Edges       []string  `json:"edges"`
-	NewBaseline bool      `json:"new_baseline"`
-	CreatedBy   string    `json:"created_by"`
-	CreatedAt   time.Time `json:"created_at"`
+	ID        int64     `json:"id"`
+	MachineID int64     `json:"machine_id"`
+	At        time.Time `json:"at"`
+	Note      string    `json:"note"`
+	Edges     []string  `json:"edges"`
+	// Component, when set, names the whole component the service touched
+	// (jaw Y2 in every beam and setup, MLC bank 2, the penumbra of one
+	// beam); with NewBaseline each of its series starts a new period whose
+	// baseline is the mean of its values at or after At stored so far (the
+	// post-service measurements), σ kept from the previous baseline.
+	Component   *Component `json:"component,omitempty"`
+	NewBaseline bool       `json:"new_baseline"`
+	CreatedBy   string     `json:"created_by"`
+	CreatedAt   time.Time  `json:"created_at"`
 }

@@ -1,6 +1,7 @@
 package halfmark
 
 import (
+	"slices"
 	"strconv"
 	"strings"
 	"time"
@@ -103,6 +104,16 @@ func (ev *ServiceEvent) Validate(now time.Time) error {
 		edges = append(edges, id.String())
 	}
 	ev.Edges = edges
+	if c := ev.Component; c != nil {
+		switch {
+		case !slices.Contains(ComponentKinds, c.Kind):
+			f.Add("component.component_kind", "must be one of jaw, mlc_bank, mlc_leaf, penumbra, light_field (got %q)", c.Kind)
+		case strings.TrimSpace(c.Name) == "":
+			f.Add("component.component", "is required: the jaw (Y2), the bank (bank 2), the leaf (B2P29) or the beam (6 MV FFF)")
+		case len(ev.Edges) > 0:
+			f.Add("edges", "give either edges or a component, not both")
+		}
+	}
 	return f.Err("the service event is not valid")
 }
 

@@ -341,3 +341,83 @@ func TestOverdueAlerts(t *testing.T) {
 		t.Errorf("%d audit rows for the overdue alert, want 2 (open, auto-resolve)", n)
 	}
 }
+
+// A service on one whole component — jaw X2, seen in two beams — starts a
+// new baseline period for every X2 series at once, from the post-service
+// measurements (the mean of the values at or after the event) with the σ
+// the engine had: the recalibrated jaw raises no finding, while jaw X1 keeps
+// its period.
+func TestComponentServiceStartsNewPeriodForTheJaw(t *testing.T) {
+	f := newFixture(t)
+	w := f.worker("w1", "", nil)
+	b2 := halfmark.Beam{MachineID: f.machine.ID, EnergyMV: 10}
+	if err := f.db.CreateBeam(f.ctx, halfmark.CLIActor("test"), &b2); err != nil {
+		t.Fatal(err)
+	}
+	record := func(k int, dx2 float64) {
+		for _, beam := range []int64{f.beam.ID, b2.ID} {
+			at := day0.AddDate(0, 0, k).Add(time.Duration(beam) * time.Minute)
+			f.clock.Set(at.Add(time.Hour))
+			c := halfmark.Check{MachineID: f.machine.ID, BeamID: beam, Kind: halfmark.KindMorning, MeasuredAt: at,
+				Setup: halfmark.Setup{FieldXcm: fptr(10), FieldYcm: fptr(10)},
+				Edges: []halfmark.EdgeResult{{Edge: "X1", PositionMM: 50 + 0.1*f.rng.NormFloat64()}, {Edge: "X2", PositionMM: 50 + dx2 + 0.1*f.rng.NormFloat64()}}}
+			if _, _, err := f.db.RecordCheck(f.ctx, halfmark.CLIActor("test"), &c); err != nil {
+				t.Fatal(err)
+			}
+		}
+	}
+	for k := 0; k < 30; k++ {
+		record(k, 0)
+	}
+	if _, err := w.Evaluate(f.ctx, true); err != nil {
+		t.Fatal(err)
+	}
+	for k := 30; k < 35; k++ {
+		record(k, 1.5) // the post-service measurements: X2 now sits 1.5 mm further out
+	}
+	at := day0.AddDate(0, 0, 30)
+	ev := halfmark.ServiceEvent{MachineID: f.machine.ID, At: at, Note: "X2 jaw recalibrated", NewBaseline: true,
+		Component: &halfmark.Component{Kind: halfmark.ComponentJaw, Name: "X2"}}
+	if err := f.db.CreateServiceEvent(f.ctx, halfmark.Actor{Name: "physicist@clinic", Role: halfmark.RolePhysicist}, &ev); err != nil {
+		t.Fatal(err)
+	}
+	for k := 35; k < 45; k++ {
+		record(k, 1.5)
+		if _, err := w.Evaluate(f.ctx, false); err != nil {
+			t.Fatal(err)
+		}
+	}
+	ss, err := f.db.MachineSeries(f.ctx, f.machine.ID)
+	if err != nil {
+		t.Fatal(err)
+	}
+	x2 := 0
+	for _, s := range ss {
+		bs, err := f.db.Baselines(f.ctx, s.ID)
+		if err != nil {
+			t.Fatal(err)
+		}
+		switch s.Edge {
+		case "X2":
+			x2++
+			if len(bs) != 1 || bs[0].Source != halfmark.BaselineService || bs[0].ValueMM == nil || bs[0].SigmaMM == nil ||
+				*bs[0].ValueMM < 51.3 || *bs[0].ValueMM > 51.7 || *bs[0].SigmaMM < 0.05 || *bs[0].SigmaMM > 0.2 {
+				t.Errorf("X2 series %d baselines %+v; want one service baseline near 51.5 mm (the mean of 5 values: ±4.5σ/√5 of 0.1 mm noise) with σ about 0.1 mm", s.ID, bs)
+			}
+		case "X1":
+			if len(bs) != 0 {
+				t.Errorf("X1 series %d got a new baseline from a service of X2", s.ID)
+			}
+		}
+	}
+	if x2 != 2 {
+		t.Errorf("%d X2 series, want one per beam", x2)
+	}
+	if fs := f.findings("all"); len(fs) != 0 {
+		t.Errorf("%d findings after the recalibrated jaw's new period, want none; first: %s (opened %s)", len(fs), fs[0].Message, fs[0].OpenedAt)
+	}
+	evs, err := f.db.ServiceEvents(f.ctx, f.machine.ID)
+	if err != nil || len(evs) != 1 || evs[0].Component == nil || evs[0].Component.Name != "X2" {
+		t.Errorf("service events %+v %v", evs, err)
+	}
+}
