@@ -592,3 +592,36 @@ func TestWithDriftEngine(t *testing.T) {
 	got, err := h.db.Alert(h.ctx, a.ID)
 	must(t, err == nil && got.State == halfmark.AlertResolved && got.ResolvedBy == "physicist@example.org", "alert after resolve: %+v %v", got, err)
 }
+
+// The machine page lists the machine's findings and lets a physicist
+// acknowledge them all at once and record a service on a whole component,
+// which starts a new baseline period for every series of that jaw.
+func TestMachinePageFindingsAndComponentService(t *testing.T) {
+	h := newHarness(t, harnessOpts{engine: true})
+	m, b := h.machine("Drifting linac", 6)
+	h.history(m, b[0], 30, func(i int) float64 { return 0.25 * float64(max(0, i-19)) })
+	h.evaluate()
+	c := h.signIn("physicist@example.org")
+	p := fmt.Sprintf("/machines/%d", m)
+	_, body, _ := c.get(p)
+	must(t, strings.Contains(body, "Active findings") && strings.Contains(body, "jaw X2") && strings.Contains(body, `href="/findings/`),
+		"machine page lacks the jaw X2 finding")
+	code, _, _ := c.postWithToken(p, p+"/findings/acknowledge", url.Values{"comment": {"seen at the morning meeting"}})
+	must(t, code == http.StatusSeeOther, "acknowledge all: %d", code)
+	fs, err := h.db.Findings(h.ctx, halfmark.FindingFilter{MachineID: m, State: "open"})
+	must(t, err == nil && len(fs) == 0, "open findings after acknowledging all: %d %v", len(fs), err)
+	code, _, _ = c.postWithToken(p, p+"/service", url.Values{"component": {"jaw|X2"}, "note": {"X2 jaw recalibrated"}, "at": {time.Now().Add(-36 * time.Hour).Format("2006-01-02T15:04")}})
+	must(t, code == http.StatusSeeOther, "component service: %d", code)
+	x2 := h.seriesID(b[0], "X2", halfmark.QPosition)
+	bs, err := h.db.Baselines(h.ctx, x2)
+	must(t, err == nil && len(bs) == 1 && bs[0].Source == halfmark.BaselineService && bs[0].ValueMM != nil,
+		"X2 baselines after the component service: %+v %v", bs, err)
+	x1 := h.seriesID(b[0], "X1", halfmark.QPosition)
+	bs, err = h.db.Baselines(h.ctx, x1)
+	must(t, err == nil && len(bs) == 0, "X1 got a baseline from a service of X2: %+v", bs)
+	th := h.signIn("therapist@example.org")
+	code, _, _ = th.postWithToken(p, p+"/service", url.Values{"component": {"jaw|X1"}, "note": {"x"}})
+	must(t, code == http.StatusForbidden, "therapist service: %d", code)
+	code, _, _ = c.postWithToken(p, p+"/service", url.Values{"component": {"jaw|Z9"}, "note": {"x"}})
+	must(t, code == http.StatusUnprocessableEntity, "unknown component: %d", code)
+}

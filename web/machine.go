@@ -23,6 +23,11 @@ type machineData struct {
 	EventsMissing bool
 	Checks        []checkRow
 	Month         string
+	// Findings are the machine's active findings (the drift engine's),
+	// Components what a service can name.
+	Findings   []halfmark.Finding
+	Components []componentOption
+	Now        string // "2006-01-02T15:04", for the service form
 }
 
 type beamBlock struct {
@@ -101,7 +106,12 @@ func (s *server) machine(c echo.Context) error {
 		return s.failErr(c, err)
 	}
 	now := s.d.Now()
-	data := machineData{M: m, Month: now.Format("2006-01")}
+	data := machineData{M: m, Month: now.Format("2006-01"), Components: machineComponents(views, beams), Now: now.Local().Format("2006-01-02T15:04")}
+	if s.d.Findings != nil {
+		if data.Findings, err = s.d.Findings.Findings(ctx, halfmark.FindingFilter{MachineID: id, State: "active"}); err != nil {
+			return s.failErr(c, err)
+		}
+	}
 	labels := map[int64]string{}
 	for _, b := range beams {
 		labels[b.ID] = b.Label

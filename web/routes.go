@@ -40,6 +40,8 @@ func (s *server) routes(e *echo.Echo) error {
 	g.GET("/machines/:id/report", s.report, ther)
 	g.GET("/machines/:id/beams/:beam", s.beam, ther)
 	g.POST("/machines/:id/report/sign", s.signReport, phys)
+	g.POST("/machines/:id/service", s.componentService, phys)
+	g.POST("/machines/:id/findings/acknowledge", s.acknowledgeAll, phys)
 	g.GET("/series/:id", s.series, ther)
 	g.POST("/series/:id/baseline", s.setBaseline, phys)
 	g.POST("/series/:id/period", s.newPeriod, phys)

@@ -120,6 +120,7 @@ func TestAccessControlMatrix(t *testing.T) {
 		"POST /monthly/save": "therapist", "GET /raw/:id": "therapist",
 		"PATCH /api/v1/machines/:id": "admin", "GET /api/v1/beams/:id/penumbra-model": "therapist",
 		"POST /api/v1/beams/:id/penumbra-model/predict": "therapist", "GET /machines/:id/beams/:beam": "therapist",
+		"POST /machines/:id/service": "physicist", "POST /machines/:id/findings/acknowledge": "physicist",
 		"GET /import": "therapist", "POST /import/preview": "physicist", "POST /import/store": "physicist", "GET /export": "therapist",
 	}
 	ids := strings.NewReplacer(":id", "", "*", "halfmark.css")
