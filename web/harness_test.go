@@ -141,6 +141,10 @@ type harnessOpts struct {
 	// engine wires the real drift engine: db.DB's StatusService,
 	// AlertService and service events, and the worker's shipped tolerances.
 	engine bool
+	// findings and evals stand in for the drift engine's stored findings
+	// and evaluations until the database serves them.
+	findings halfmark.FindingService
+	evals    halfmark.EvaluationService
 }
 
 func newHarness(t testing.TB, o harnessOpts) *harness {
@@ -159,7 +163,7 @@ func newHarness(t testing.TB, o harnessOpts) *harness {
 	log := slog.New(slog.NewTextHandler(io.Discard, nil))
 	e := api.New(api.Services{Machines: d, Checks: d, Series: d, Auth: d, Audit: d, Pinger: d, Log: log})
 	deps := web.Deps{Machines: d, Checks: d, Series: d, Users: d, Sessions: d, SignOffs: d, Raw: d,
-		Alerts: h.alerts, Audit: d, Tolerances: h.book, Log: log}
+		Alerts: h.alerts, Audit: d, Tolerances: h.book, Log: log, Reports: d, Findings: o.findings, Evaluations: o.evals}
 	if !o.noStatus {
 		deps.Status = h.status
 	}

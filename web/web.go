@@ -58,8 +58,16 @@ type Deps struct {
 	Events     ServiceEventLister
 	Audit      halfmark.AuditService
 	Tolerances halfmark.ToleranceBook
-	Log        *slog.Logger
-	Now        func() time.Time
+	// Findings, Evaluations and Reports: what the drift engine stored and
+	// the signed reports (nil: the pages say the part is not available).
+	Findings    halfmark.FindingService
+	Evaluations halfmark.EvaluationService
+	Reports     halfmark.ReportService
+	// Instruction is shown beside a Level 2 or 3 morning verdict (empty:
+	// DefaultInstruction).
+	Instruction string
+	Log         *slog.Logger
+	Now         func() time.Time
 
 	// SessionIdle ends a session after this long without a request
 	// (default 12 h); SessionMaxAge ends it in any case (default 7 days).
