@@ -21,6 +21,9 @@ func (h *handlers) routes(e *echo.Echo) {
 	v1.GET("/machines/:id/beams", h.listBeams, therapist)
 	v1.POST("/machines/:id/beams", h.createBeam, admin)
 	v1.GET("/machines/:id/series", h.machineSeries, therapist)
+	v1.GET("/machines/:id/reports/:month", h.getReportDraft, therapist)
+	v1.GET("/machines/:id/reports/:month/signed", h.getSignedReport, therapist)
+	v1.POST("/machines/:id/reports/:month/sign", h.signReport, physicist)
 
 	v1.POST("/checks", h.createCheck, therapist)
 	v1.POST("/checks/batch", h.createBatch, therapist)

@@ -25,9 +25,13 @@ type Services struct {
 	Events   EventService           // service events
 	Charts   ChartService           // series charts (nil: the chart route answers 503)
 	Raw      halfmark.RawService    // raw data behind checks
-	Metrics  *Metrics               // nil: no /metrics
-	Log      *slog.Logger
-	Now      func() time.Time
+	// Reports keeps signed monthly reports; ReportRenderer renders drafts
+	// (nil: the report routes answer 503).
+	Reports        halfmark.ReportService
+	ReportRenderer halfmark.ReportRenderer
+	Metrics        *Metrics // nil: no /metrics
+	Log            *slog.Logger
+	Now            func() time.Time
 }
 
 // New returns an echo server with the error handler and the API routes.

@@ -578,12 +578,20 @@ func (r *Reporter) render(d *reportData) ([]byte, error) {
 			y += 2.8
 		}
 		pdf.SetXY(15, y)
-		pdf.CellFormat(180, 2.8, p.tr(d.M.Name+" · "+d.Month)+fmt.Sprintf(" · page %d of {nb}", pdf.PageNo()), "", 0, "R", false, 0, "")
+		pdf.CellFormat(180, 2.8, p.tr(fmt.Sprintf("%s · %s · page %d of {nb}", d.M.Name, d.Month, pdf.PageNo())), "", 0, "R", false, 0, "")
 		pdf.SetTextColor(0, 0, 0)
 	})
 	pdf.AddPage()
 	p.text("Monthly QA report: "+d.M.Name+", "+d.Month, 16, "B")
-	p.text(fmt.Sprintf("Machine %s (%s, serial %s, SAD %g cm). Month %s (%s to %s). Produced %s.", d.M.Name, d.M.Model, d.M.Serial, d.M.SADcm,
+	about := []string{}
+	if d.M.Model != "" {
+		about = append(about, d.M.Model)
+	}
+	if d.M.Serial != "" {
+		about = append(about, "serial "+d.M.Serial)
+	}
+	about = append(about, fmt.Sprintf("SAD %g cm", d.M.SADcm))
+	p.text(fmt.Sprintf("Machine %s (%s). Month %s (%s to %s). Produced %s.", d.M.Name, strings.Join(about, ", "),
 		d.Month, d.From.Format("2006-01-02"), d.To.AddDate(0, 0, -1).Format("2006-01-02"), r.d.Now().Local().Format("2006-01-02 15:04")), 9, "")
 	tol := "Tolerance book: " + r.d.Tolerances.Source() + ", SHA-256 " + r.d.Tolerances.Hash() + "."
 	if r.d.Tolerances.IsShippedExample() {
@@ -698,8 +706,8 @@ func (p *report) image(png []byte, x, y, w float64) {
 }
 
 // caption writes wrapped lines in a column; it returns the y below them.
-func (p *report) caption(s string, x, y, w float64) float64 {
-	p.pdf.SetFont("Helvetica", "", 7)
+func (p *report) caption(s string, x, y, w float64, style string) float64 {
+	p.pdf.SetFont("Helvetica", style, 7)
 	for _, l := range p.wrap(p.tr(s), w) {
 		p.pdf.SetXY(x, y)
 		p.pdf.CellFormat(w, 3, l, "", 0, "L", false, 0, "")
@@ -803,7 +811,8 @@ func (r *Reporter) charts(p *report, d *reportData) error {
 				ch, ev := d.chartOf(s)
 				capt := seriesCaption(ev, d.inMonth(ch))
 				pdf.SetFont("Helvetica", "", 7)
-				need := imgH + float64(len(p.wrap(p.tr(capt), colW)))*3 + 3
+				title := s.Edge + " " + string(s.Quantity) + " · " + s.Geometry
+				need := imgH + float64(len(p.wrap(p.tr(capt), colW))+len(p.wrap(p.tr(title), colW)))*3 + 3
 				if col == 0 {
 					pdf.SetY(rowBottom)
 					if p.room(need) {
@@ -811,14 +820,15 @@ func (r *Reporter) charts(p *report, d *reportData) error {
 					}
 					rowTop = rowBottom
 				}
-				title := s.Edge + " " + string(s.Quantity) + " · " + s.Geometry
-				png, err := pngChart(enginePlot(ch, engineView{Title: title, From: d.From, To: d.To, Compact: true}), vg.Points(255), vg.Points(150))
+				png, err := pngChart(enginePlot(ch, engineView{From: d.From, To: d.To, Compact: true}), vg.Points(255), vg.Points(150))
 				if err != nil {
 					return err
 				}
 				x := p.left + float64(col)*(colW+4)
-				p.image(png, x, rowTop, colW)
-				y := p.caption(capt, x, rowTop+imgH+0.5, colW)
+				pdf.SetFont("Helvetica", "B", 7.5)
+				top := p.caption(title, x, rowTop, colW, "B")
+				p.image(png, x, top, colW)
+				y := p.caption(capt, x, top+imgH+0.5, colW, "")
 				rowBottom = max(rowBottom, y+3)
 				col = (col + 1) % 2
 			}
@@ -832,6 +842,7 @@ func (r *Reporter) charts(p *report, d *reportData) error {
 			return leafTime[a].Before(leafTime[c])
 		})
 		if len(leafOrder) > 0 {
+			p.room(14 + 180*140/380 + 11)
 			p.heading(b.Label + ": MLC leaves")
 		}
 		for _, k := range leafOrder {
@@ -851,14 +862,14 @@ func (r *Reporter) charts(p *report, d *reportData) error {
 				capt += fmt.Sprintf(" %d leaf ends without a deviation yet (baseline pending or not evaluated).", n)
 			}
 			const w, h = 180.0, 180.0 * 140 / 380
-			p.room(h + 8)
-			png, err := pngChart(leafPlot(title, pairs, devs, sig, leafTol[k]), vg.Points(380), vg.Points(140))
+			p.room(h + 11)
+			png, err := pngChart(leafPlot("", pairs, devs, sig, leafTol[k]), vg.Points(380), vg.Points(140))
 			if err != nil {
 				return err
 			}
-			y := pdf.GetY()
+			y := p.caption(title, p.left, pdf.GetY(), w, "B")
 			p.image(png, p.left, y, w)
-			pdf.SetY(p.caption(capt, p.left, y+h+0.5, w) + 3)
+			pdf.SetY(p.caption(capt, p.left, y+h+0.5, w, "") + 3)
 		}
 	}
 	if len(idle) > 0 {
