@@ -137,3 +137,25 @@ func (s *server) moveFinding(c echo.Context, resolve bool) error {
 	return s.render(c, http.StatusUnprocessableEntity, "finding", "Finding "+strconv.FormatInt(id, 10),
 		findingData{findingRow: rowOf(f), Problem: problem, Comment: comment})
 }
+
+// alertsPage sends links of older notifications (/alerts) to the findings.
+func (s *server) alertsPage(c echo.Context) error {
+	return c.Redirect(http.StatusSeeOther, "/findings")
+}
+
+// alertPage sends a link to one alert (/alerts/{id}, in notifications sent
+// before findings) to the page that shows it: its series, else its machine.
+func (s *server) alertPage(c echo.Context) error {
+	id, err := strconv.ParseInt(c.Param("id"), 10, 64)
+	if err != nil || id <= 0 || s.d.Alerts == nil {
+		return s.fail(c, http.StatusNotFound, "There is no alert "+c.Param("id")+".")
+	}
+	a, err := s.d.Alerts.Alert(c.Request().Context(), id)
+	if err != nil {
+		return s.failErr(c, err)
+	}
+	if a.SeriesID != nil {
+		return c.Redirect(http.StatusSeeOther, fmt.Sprintf("/series/%d", *a.SeriesID))
+	}
+	return c.Redirect(http.StatusSeeOther, fmt.Sprintf("/machines/%d", a.MachineID))
+}

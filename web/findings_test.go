@@ -142,3 +142,19 @@ func TestFindingLinkAfterSignIn(t *testing.T) {
 	must(t, code == http.StatusOK && strings.Contains(body, "Finding 41"), "finding page: %d", code)
 	_ = fmt.Sprint
 }
+
+// Links of notifications sent before findings (/alerts, /alerts/{id}) open
+// real pages: the findings list and the alert's series.
+func TestOldAlertLinksLand(t *testing.T) {
+	h := newHarness(t, harnessOpts{})
+	mid, _ := h.machine("Heron", 6)
+	sid := int64(12)
+	h.alerts.alerts = append(h.alerts.alerts, halfmark.Alert{ID: 5, MachineID: mid, SeriesID: &sid, Level: halfmark.LevelInspect, State: halfmark.AlertOpen})
+	th := h.signIn("therapist@example.org")
+	code, _, hdr := th.get("/alerts/5")
+	must(t, code == http.StatusSeeOther && hdr.Get("Location") == "/series/12", "alert link: %d %q", code, hdr.Get("Location"))
+	code, _, hdr = th.get("/alerts")
+	must(t, code == http.StatusSeeOther && hdr.Get("Location") == "/findings", "alerts link: %d %q", code, hdr.Get("Location"))
+	code, _, _ = th.get("/alerts/77")
+	must(t, code == http.StatusNotFound, "unknown alert: %d", code)
+}

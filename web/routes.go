@@ -64,6 +64,8 @@ func (s *server) routes(e *echo.Echo) error {
 	g.GET("/findings/:id", s.finding, ther)
 	g.POST("/findings/:id/acknowledge", s.findingAcknowledge, phys)
 	g.POST("/findings/:id/resolve", s.findingResolve, phys)
+	g.GET("/alerts", s.alertsPage, ther)
+	g.GET("/alerts/:id", s.alertPage, ther)
 	g.GET("/series/:id", s.series, ther)
 	g.POST("/series/:id/baseline", s.setBaseline, phys)
 	g.POST("/series/:id/period", s.newPeriod, phys)
