@@ -513,7 +513,7 @@ func engineEWMAPlot(ch halfmark.SeriesChart, v engineView) *plot.Plot {
 // stackedSVG draws plots one above the other, aligned so that they share
 // one time axis: the same x range (set by the caller) and the same
 // plotting-area left and right edges (plot.Align pads every panel to the
-// widest y-axis labels). heights are the panels' shares of h.
+// widest y-axis labels); the panels share h equally.
 func stackedSVG(plots []*plot.Plot, w, h vg.Length, label string) (template.HTML, error) {
 	c := vgsvg.New(w, h)
 	drawStacked(plots, draw.New(c))
@@ -601,3 +601,18 @@ func plainNumbers(s string) string {
 }
 
 var absBars = regexp.MustCompile(`\|[−+-]?[0-9]+(?:\.[0-9]+)?\|`)
+
+// seriesChartSVG draws a series page's chart from the engine's stored
+// chart: the value panel and, when the engine stored EWMA statistics, the
+// EWMA panel below it on the same time axis (one SVG, panels aligned by
+// plot.Align). Superseded values are drawn as corrected.
+func seriesChartSVG(ch halfmark.SeriesChart, title string, corrected []correctedPoint) (template.HTML, error) {
+	v := engineView{Title: title, Corrected: corrected}
+	plots := []*plot.Plot{enginePlot(ch, v)}
+	h := vg.Points(300)
+	if e := engineEWMAPlot(ch, v); e != nil {
+		plots = append(plots, e)
+		h = vg.Points(470)
+	}
+	return stackedSVG(plots, vg.Points(720), h, title)
+}
