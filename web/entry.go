@@ -406,7 +406,7 @@ func (s *server) verdictFor(ctx context.Context, st halfmark.StoredCheck, create
 				r.Pending, r.Level, r.DeviationMM = false, ev.Level, ev.DeviationMM
 				r.Text = verdictText(ev.Verdict, ev.Level)
 				if ev.Rule != "" && ev.Verdict == halfmark.VerdictSignal {
-					r.Text += ": " + plainNumbers(ev.Rule)
+					r.Text = plainNumbers(ev.Rule) // the badge beside it names the level
 				}
 				if ev.Limits != nil {
 					r.Limits, r.HasLimits = *ev.Limits, true
