@@ -169,6 +169,13 @@ func newHarness(t testing.TB, o harnessOpts) *harness {
 	}
 	if o.engine {
 		deps.Status, deps.Alerts, deps.Events, deps.Tolerances = d, d, d, worker.ShippedTolerances()
+		// The engine's stored evaluations and findings, once the store serves them.
+		if e, ok := any(d).(halfmark.EvaluationService); ok && o.evals == nil {
+			deps.Evaluations = e
+		}
+		if f, ok := any(d).(halfmark.FindingService); ok && o.findings == nil {
+			deps.Findings = f
+		}
 	}
 	if err := web.Register(e, deps); err != nil {
 		t.Fatal(err)
