@@ -1036,10 +1036,11 @@ func (s *server) signReport(c echo.Context) error {
 			return s.failErr(c, perr)
 		}
 		pg.Problem, pg.Reason = err.Error(), reason
-		if he, ok := err.(*halfmark.Error); ok && he.Code == halfmark.EConflict {
-			pg.Problem = he.Message
+		status := http.StatusUnprocessableEntity
+		if halfmark.ErrorCodeOf(err) == halfmark.EConflict {
+			pg.Problem, status = messageOf(err), http.StatusConflict
 		}
-		return s.render(c, http.StatusUnprocessableEntity, "report", "Report "+pg.Machine.Name+" "+month, pg)
+		return s.render(c, status, "report", "Report "+pg.Machine.Name+" "+month, pg)
 	}
 	return c.Redirect(http.StatusSeeOther, fmt.Sprintf("/machines/%d/reports/%s", id, month))
 }
