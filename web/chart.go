@@ -535,12 +535,12 @@ func drawStacked(plots []*plot.Plot, dc draw.Canvas) {
 // leafPlot draws one MLC bank in one image: each leaf end's deviation from
 // its baseline (mm, the leaf error) against its leaf pair, with the
 // tolerance band; signalled leaves as triangles.
-func leafPlot(title string, pairs []int, devs []float64, signal []bool, tol *float64) *plot.Plot {
+func leafPlot(title, ylabel string, pairs []int, devs []float64, signal []bool, tol *float64) *plot.Plot {
 	p := plot.New()
 	sansFonts(p, vg.Points(8))
 	p.Title.Text = title
 	p.X.Label.Text = "leaf pair"
-	p.Y.Label.Text = "leaf error (mm)"
+	p.Y.Label.Text = ylabel
 	p.BackgroundColor = color.White
 	x0, x1 := 0.0, 1.0
 	for i, n := range pairs {
@@ -552,7 +552,7 @@ func leafPlot(title string, pairs []int, devs []float64, signal []bool, tol *flo
 		}
 	}
 	x0, x1 = x0-1, x1+1
-	ymin, ymax := -0.5, 0.5
+	ymin, ymax := math.Inf(1), math.Inf(-1)
 	if tol != nil {
 		t := *tol
 		if poly, err := plotter.NewPolygon(plotter.XYs{{X: x0, Y: -t}, {X: x1, Y: -t}, {X: x1, Y: t}, {X: x0, Y: t}}); err == nil {
@@ -561,9 +561,12 @@ func leafPlot(title string, pairs []int, devs []float64, signal []bool, tol *flo
 		}
 		ymin, ymax = math.Min(ymin, -t), math.Max(ymax, t)
 	}
-	if l, err := plotter.NewLine(plotter.XYs{{X: x0, Y: 0}, {X: x1, Y: 0}}); err == nil {
-		l.Color, l.Width = inkColour, vg.Points(0.8)
-		p.Add(l)
+	if tol != nil { // a deviation chart: zero is the baseline
+		if l, err := plotter.NewLine(plotter.XYs{{X: x0, Y: 0}, {X: x1, Y: 0}}); err == nil {
+			l.Color, l.Width = inkColour, vg.Points(0.8)
+			p.Add(l)
+		}
+		ymin, ymax = math.Min(ymin, -0.5), math.Max(ymax, 0.5)
 	}
 	var xy, sig plotter.XYs
 	for i, n := range pairs {
@@ -586,7 +589,13 @@ func leafPlot(title string, pairs []int, devs []float64, signal []bool, tol *flo
 			p.Add(s)
 		}
 	}
+	if math.IsInf(ymin, 0) {
+		ymin, ymax = -0.5, 0.5
+	}
 	pad := (ymax - ymin) * 0.08
+	if pad == 0 {
+		pad = 0.1
+	}
 	p.X.Min, p.X.Max, p.Y.Min, p.Y.Max = x0, x1, ymin-pad, ymax+pad
 	return p
 }

@@ -719,9 +719,9 @@ func (p *report) caption(s string, x, y, w float64, style string) float64 {
 // seriesCaption is the engine's verdict on a series and its projection.
 func seriesCaption(ev *halfmark.SeriesEvaluation, n int) string {
 	if ev == nil {
-		return fmt.Sprintf("%d points this month. Not evaluated by the drift engine yet: values only.", n)
+		return plural(n, "point") + " this month. Not evaluated by the drift engine yet: values only."
 	}
-	s := fmt.Sprintf("%d points this month. Verdict (%s): %s", n, ev.EvaluatedAt.Local().Format("2006-01-02"), verdictWord(ev.Verdict, ev.Level))
+	s := fmt.Sprintf("%s this month. Verdict (%s): %s", plural(n, "point"), ev.EvaluatedAt.Local().Format("2006-01-02"), verdictWord(ev.Verdict, ev.Level))
 	if ev.Rule != "" {
 		s += ": " + plainNumbers(ev.Rule)
 	}
@@ -763,6 +763,7 @@ func (r *Reporter) charts(p *report, d *reportData) error {
 		leafTime := map[leafKey]time.Time{}
 		leafTol := map[leafKey]*float64{}
 		leafPending := map[leafKey]int{}
+		leafRaw := map[leafKey][]leafPt{} // positions of leaf ends without a judged deviation
 		var leafOrder []leafKey
 		for _, s := range d.Series {
 			if s.BeamID != b.ID {
@@ -793,6 +794,7 @@ func (r *Reporter) charts(p *report, d *reportData) error {
 				}
 				if ev == nil || ev.Verdict == halfmark.VerdictBaselinePending {
 					leafPending[k]++
+					leafRaw[k] = append(leafRaw[k], leafPt{e.LeafPair, pt.ValueMM, false})
 					continue
 				}
 				if ev.Limits != nil && leafTol[k] == nil {
@@ -846,7 +848,11 @@ func (r *Reporter) charts(p *report, d *reportData) error {
 			p.heading(b.Label + ": MLC leaves")
 		}
 		for _, k := range leafOrder {
-			pts := leafGroups[k]
+			pts, ylabel, tol := leafGroups[k], "leaf error (mm)", leafTol[k]
+			if len(pts) == 0 {
+				// Nothing judged yet: the positions themselves, not a deviation.
+				pts, ylabel, tol = leafRaw[k], "leaf end position (mm)", nil
+			}
 			sort.Slice(pts, func(i, j int) bool { return pts[i].pair < pts[j].pair })
 			pairs, devs, sig := make([]int, len(pts)), make([]float64, len(pts)), make([]bool, len(pts))
 			nsig := 0
@@ -857,13 +863,16 @@ func (r *Reporter) charts(p *report, d *reportData) error {
 				}
 			}
 			title := fmt.Sprintf("%s · bank %d · %s · image %s", b.Label, k.bank, k.geometry, leafTime[k].Local().Format("2006-01-02 15:04"))
-			capt := fmt.Sprintf("%d leaf ends judged by the drift engine, %d with a rule firing.", len(pts), nsig)
+			capt := fmt.Sprintf("%s judged by the drift engine, %d with a rule firing.", plural(len(leafGroups[k]), "leaf end"), nsig)
 			if n := leafPending[k]; n > 0 {
-				capt += fmt.Sprintf(" %d leaf ends without a deviation yet (baseline pending or not evaluated).", n)
+				capt += fmt.Sprintf(" %s without a deviation yet (baseline pending or not evaluated).", plural(n, "leaf end"))
+				if len(leafGroups[k]) == 0 {
+					capt += " The chart shows their positions."
+				}
 			}
 			const w, h = 180.0, 180.0 * 140 / 380
 			p.room(h + 11)
-			png, err := pngChart(leafPlot("", pairs, devs, sig, leafTol[k]), vg.Points(380), vg.Points(140))
+			png, err := pngChart(leafPlot("", ylabel, pairs, devs, sig, tol), vg.Points(380), vg.Points(140))
 			if err != nil {
 				return err
 			}
@@ -1061,4 +1070,12 @@ func isASCII(s string) bool {
 		}
 	}
 	return true
+}
+
+// plural is "1 point", "3 points".
+func plural(n int, what string) string {
+	if n == 1 {
+		return "1 " + what
+	}
+	return strconv.Itoa(n) + " " + what + "s"
 }
