@@ -33,14 +33,13 @@ type findingsData struct {
 	States    []string
 	MachineID int64
 	Machines  []halfmark.Machine
+	// Unavailable: this server has no finding store yet.
+	Unavailable bool
 }
 
 // findings lists findings: active ones by default, of one machine with
 // ?machine=N, in another state with ?state=.
 func (s *server) findings(c echo.Context) error {
-	if s.d.Findings == nil {
-		return s.fail(c, http.StatusServiceUnavailable, "Findings are not available on this server yet.")
-	}
 	state, err := halfmark.ParseFindingState(c.QueryParam("state"))
 	if err != nil {
 		return s.fail(c, http.StatusBadRequest, "The state filter is not valid: "+err.Error()+".")
@@ -54,6 +53,10 @@ func (s *server) findings(c echo.Context) error {
 	ctx := c.Request().Context()
 	if d.Machines, err = s.d.Machines.Machines(ctx); err != nil {
 		return s.failErr(c, err)
+	}
+	if s.d.Findings == nil {
+		d.Unavailable = true
+		return s.render(c, http.StatusOK, "findings", "Findings", d)
 	}
 	fs, err := s.d.Findings.Findings(ctx, halfmark.FindingFilter{MachineID: d.MachineID, State: state, Limit: 1000})
 	if err != nil {
@@ -77,7 +80,7 @@ func (s *server) findingID(c echo.Context) (int64, error) {
 		return 0, halfmark.Errorf(halfmark.ENotFound, "There is no finding %s.", c.Param("id"))
 	}
 	if s.d.Findings == nil {
-		return 0, halfmark.Errorf(halfmark.EUnavailable, "Findings are not available on this server yet.")
+		return 0, halfmark.Errorf(halfmark.ENotFound, "There is no finding %d: this server keeps no findings yet.", id)
 	}
 	return id, nil
 }
