@@ -92,19 +92,23 @@ type AlertService interface {
 	Resolve(ctx context.Context, a Actor, id int64, comment string) (Alert, error)
 }
 
-// WorstSeries is the most urgent series of a machine.
+// WorstSeries is the most urgent active finding of a machine, with the
+// series fields of its first evidence series.
 type WorstSeries struct {
-	SeriesID          int64      `json:"series_id"`
-	BeamID            int64      `json:"beam_id"`
-	BeamLabel         string     `json:"beam_label"`
-	Edge              string     `json:"edge"`
-	Quantity          Quantity   `json:"quantity"`
-	Geometry          string     `json:"geometry"`
-	DeviationMM       *float64   `json:"deviation_mm"`
-	ToleranceMM       *float64   `json:"tolerance_mm"`
-	ActionMM          *float64   `json:"action_mm"`
-	Rule              string     `json:"rule"`
-	ProjectedCrossing *time.Time `json:"projected_crossing"`
+	FindingID         *int64        `json:"finding_id"`
+	ComponentKind     ComponentKind `json:"component_kind"`
+	Component         string        `json:"component"`
+	SeriesID          int64         `json:"series_id"`
+	BeamID            int64         `json:"beam_id"`
+	BeamLabel         string        `json:"beam_label"`
+	Edge              string        `json:"edge"`
+	Quantity          Quantity      `json:"quantity"`
+	Geometry          string        `json:"geometry"`
+	DeviationMM       *float64      `json:"deviation_mm"`
+	ToleranceMM       *float64      `json:"tolerance_mm"`
+	ActionMM          *float64      `json:"action_mm"`
+	Rule              string        `json:"rule"`
+	ProjectedCrossing *time.Time    `json:"projected_crossing"`
 }
 
 // MachineStatus is one row of the front page.
@@ -113,7 +117,8 @@ type MachineStatus struct {
 	Name        string       `json:"name"`
 	Level       Level        `json:"level"`
 	Overdue     bool         `json:"overdue"`
-	OpenAlerts  int          `json:"open_alerts"`
+	Findings    int          `json:"findings"`    // active findings
+	OpenAlerts  int          `json:"open_alerts"` // kept for compatibility: per-series evidence alerts
 	LastCheckAt *time.Time   `json:"last_check_at"`
 	Worst       *WorstSeries `json:"worst"`
 }

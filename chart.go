@@ -69,9 +69,26 @@ type SeriesEvaluation struct {
 	BaselineEstimated bool            `json:"baseline_estimated"`
 	DeviationMM       *float64        `json:"deviation_mm"`
 	Crossing          FindingCrossing `json:"crossing"`
+	Trend             *SeriesTrend    `json:"trend,omitempty"`
 	FindingIDs        []int64         `json:"finding_ids"` // active findings this series is evidence of
 	ToleranceHash     string          `json:"tolerance_hash"`
 	Chart             SeriesChart     `json:"chart"`
+}
+
+// SeriesTrend is the drift line the engine fitted to a series (Theil–Sen
+// with Sen's 95% slope interval, Sen 1968), for drawing: the line runs from
+// (From, FromMM) to (To, ToMM).
+type SeriesTrend struct {
+	Method        string    `json:"method"`
+	Points        int       `json:"points"`
+	From          time.Time `json:"from"`
+	To            time.Time `json:"to"`
+	FromMM        float64   `json:"from_mm"`
+	ToMM          float64   `json:"to_mm"`
+	SlopePer30dMM float64   `json:"slope_per_30d_mm"`
+	CILowMM       float64   `json:"ci_low_per_30d_mm"`
+	CIHighMM      float64   `json:"ci_high_per_30d_mm"`
+	Significant   bool      `json:"significant"`
 }
 
 // EvaluationService reads what the drift engine stored.

@@ -104,7 +104,8 @@ type Check struct {
 	BeamID          int64        `json:"beam_id"`
 	Kind            CheckKind    `json:"kind"`
 	MeasuredAt      time.Time    `json:"measured_at"`
-	Device          string       `json:"device,omitempty"`   // detector or method, e.g. "EPID", "diode array", "film"
+	Device          string       `json:"device,omitempty"`   // detector, e.g. "EPID", "diode array", "film"
+	Method          Method       `json:"method,omitempty"`   // how the values were measured; empty: inferred (InferMethod)
 	Operator        string       `json:"operator,omitempty"` // who measured
 	Note            string       `json:"note,omitempty"`
 	Setup           Setup        `json:"setup"`

@@ -213,3 +213,55 @@ type FindingService interface {
 	// ResolveFinding closes a finding by hand; a comment is required.
 	ResolveFinding(ctx context.Context, a Actor, id int64, comment string) (Finding, error)
 }
+
+// InferMethod is the method a check was most likely measured with when it
+// does not say: from its raw data (an EPID image or picket fence → epid, a
+// profile → scan), else from words in its device ("EPID" or "portal" →
+// epid, "film" → film, a tank, array, chamber or diode → scan), else typed.
+func InferMethod(device string, raw RawKind) Method {
+	switch raw {
+	case RawImage, RawPicket:
+		return MethodEPID
+	case RawProfile:
+		return MethodScan
+	}
+	d := strings.ToLower(device)
+	has := func(words ...string) bool {
+		for _, w := range words {
+			if strings.Contains(d, w) {
+				return true
+			}
+		}
+		return false
+	}
+	switch {
+	case has("epid", "portal"):
+		return MethodEPID
+	case has("film"):
+		return MethodFilm
+	case has("tank", "scan", "array", "chamber", "diode"):
+		return MethodScan
+	}
+	return MethodTyped
+}
+
+// SetMethods fills the method of every check that has none (InferMethod
+// with the raw kind, "" when there is no raw data) and refuses an unknown
+// one, naming the field ("checks[3].method" for batch prefix "checks").
+func SetMethods(cs []Check, raw RawKind, prefix string) error {
+	var f Fields
+	for i := range cs {
+		c := &cs[i]
+		switch {
+		case c.Method == "":
+			c.Method = InferMethod(c.Device, raw)
+		case !c.Method.Valid():
+			p := ""
+			if prefix != "" {
+				p = fmt.Sprintf("%s[%d].", prefix, i)
+			}
+			f.Add(p+"method", "must be one of typed, epid, scan, film, other (got %q)", c.Method)
+		}
+	}
+	return f.Err("the check is not valid; nothing was stored")
+}

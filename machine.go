@@ -21,6 +21,8 @@ type Machine struct {
 	MLCLayout    string    `json:"mlc_layout"`     // leaf-width layout name or spec, e.g. "60" or "10x10,40x5,10x10"
 	Clinical     bool      `json:"clinical"`       // in clinical use
 	CreatedAt    time.Time `json:"created_at"`
+
+	Collimators *Collimators `json:"collimators"` // collimator geometry; nil until recorded
 }
 
 // Validate checks a machine before it is stored.
@@ -39,6 +41,9 @@ func (m *Machine) Validate() error {
 	}
 	if m.MLCLeafPairs < 0 || m.MLCLeafPairs > 200 {
 		f.Add("mlc_leaf_pairs", "must be between 0 and 200 (got %d)", m.MLCLeafPairs)
+	}
+	if m.Collimators != nil {
+		m.Collimators.validate(&f, m.SADcm, m.MLCLeafPairs > 0)
 	}
 	return f.Err("the machine is not valid")
 }
@@ -103,6 +108,10 @@ type MachineService interface {
 	CreateBeam(ctx context.Context, a Actor, b *Beam) error
 	// Beams lists a machine's beams by energy.
 	Beams(ctx context.Context, machineID int64) ([]Beam, error)
+	// SetCollimators records a machine's collimator geometry and returns
+	// the machine. EInvalid for a bad geometry, ENotFound for an unknown
+	// machine.
+	SetCollimators(ctx context.Context, a Actor, machineID int64, c Collimators) (Machine, error)
 }
 
 func finite(v float64) bool { return !math.IsNaN(v) && !math.IsInf(v, 0) }

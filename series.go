@@ -26,6 +26,7 @@ type Series struct {
 	Geometry  string     `json:"geometry"`
 	Edge      string     `json:"edge"`
 	Quantity  Quantity   `json:"quantity"`
+	Method    Method     `json:"method"` // each measurement method has its own series and baseline
 	Points    int        `json:"points"` // number of current (not superseded) points
 	LastAt    *time.Time `json:"last_at,omitempty"`
 	Baseline  *Baseline  `json:"baseline,omitempty"` // the baseline in force now
@@ -38,6 +39,7 @@ type SeriesKey struct {
 	Geometry  string
 	Edge      string
 	Quantity  Quantity
+	Method    Method
 }
 
 // Point is one current value of a series.

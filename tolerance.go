@@ -1,5 +1,14 @@
 package halfmark
 
+// Quantities a tolerance book may set beyond the per-edge ones (QPosition,
+// QPenumbra, QLightOffset).
+const (
+	QFieldSize    Quantity = "field_size"    // X1 + X2 (or Y1 + Y2), mm
+	QCentreOffset Quantity = "centre_offset" // (X2 − X1)/2, mm
+	QMLCLeaf      Quantity = "mlc_leaf"      // one MLC leaf end position, mm
+	QMLCBankMean  Quantity = "mlc_bank_mean" // mean deviation of a bank's leaf ends, mm
+)
+
 // Limits are the local tolerance and action limit for one quantity: the
 // largest |deviation from baseline| (mm, or % for flatness/symmetry) that
 // is inside tolerance (TG-142 Level 2 beyond it) and inside the action

@@ -3,6 +3,7 @@ package halfmark
 import (
 	"context"
 	"net/mail"
+	"strconv"
 	"strings"
 	"time"
 	"unicode/utf8"
@@ -51,33 +52,11 @@ func ValidatePassword(p string) error {
 	case !utf8.ValidString(p):
 		return Invalid("the password is not valid", FieldError{Field: "password", Message: "is not valid UTF-8 text"})
 	case n < MinPasswordLength:
-		return Invalid("the password is not valid", FieldError{Field: "password", Message: "has " + itoa(n) + " characters; use at least " + itoa(MinPasswordLength)})
+		return Invalid("the password is not valid", FieldError{Field: "password", Message: "has " + strconv.Itoa(n) + " characters; use at least " + strconv.Itoa(MinPasswordLength)})
 	case n > MaxPasswordLength:
-		return Invalid("the password is not valid", FieldError{Field: "password", Message: "is longer than " + itoa(MaxPasswordLength) + " characters"})
+		return Invalid("the password is not valid", FieldError{Field: "password", Message: "is longer than " + strconv.Itoa(MaxPasswordLength) + " characters"})
 	}
 	return nil
-}
-
-func itoa(n int) string {
-	var b [20]byte
-	i := len(b)
-	neg := n < 0
-	if neg {
-		n = -n
-	}
-	for {
-		i--
-		b[i] = byte('0' + n%10)
-		n /= 10
-		if n == 0 {
-			break
-		}
-	}
-	if neg {
-		i--
-		b[i] = '-'
-	}
-	return string(b[i:])
 }
 
 // UserService stores dashboard users.
@@ -117,5 +96,5 @@ type SignOffService interface {
 
 // ReportEntityID is the audit entity id of a monthly report.
 func ReportEntityID(machineID int64, month string) string {
-	return "machine/" + itoa(int(machineID)) + "/" + month
+	return "machine/" + strconv.FormatInt(machineID, 10) + "/" + month
 }

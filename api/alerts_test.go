@@ -37,7 +37,7 @@ func newDriftEnv(t *testing.T) (*env, *worker.Worker) {
 	}
 	e.srv.Close()
 	e.srv = httptest.NewServer(api.New(api.Services{Machines: e.db, Checks: e.db, Series: e.db, Auth: e.db, Audit: e.db, Pinger: e.db,
-		Alerts: e.db, Status: e.db, Events: e.db, Charts: w, Now: func() time.Time { return now }}))
+		Alerts: e.db, Status: e.db, Events: e.db, Findings: e.db, Evaluations: e.db, Now: func() time.Time { return now }}))
 	t.Cleanup(e.srv.Close)
 	for k := 0; k < 26; k++ {
 		at := now.AddDate(0, 0, k-26)
@@ -101,24 +101,64 @@ func TestStatusAlertsAndChart(t *testing.T) {
 	}
 	e.mustDo("POST", "/api/v1/alerts/999999/resolve", halfmark.RolePhysicist, `{"comment":"x"}`, 404, nil)
 
-	var ch struct {
-		Limits  halfmark.Limits `json:"limits"`
-		Verdict struct {
-			Level int `json:"level"`
-			Chart struct {
-				Points []struct {
-					ValueMM float64  `json:"value_mm"`
-					EWMA    *float64 `json:"ewma"`
-				} `json:"points"`
-			} `json:"chart"`
-		} `json:"verdict"`
-	}
+	// The chart document is the engine's stored evaluation, read as stored.
+	var ch api.SeriesChartDocument
 	sid := list.Alerts[0].SeriesID
 	e.mustDo("GET", fmt.Sprintf("/api/v1/series/%d/chart", *sid), halfmark.RoleTherapist, "", 200, &ch)
-	if ch.Verdict.Level != 3 || len(ch.Verdict.Chart.Points) != 26 || ch.Verdict.Chart.Points[0].EWMA == nil || ch.Limits.ActionMM != 2.5 {
-		t.Errorf("chart: level %d, %d points, limits %+v", ch.Verdict.Level, len(ch.Verdict.Chart.Points), ch.Limits)
+	ev := ch.Evaluation
+	if ev.Level != 3 || len(ev.Chart.Points) != 26 || ev.Chart.Points[0].EWMA == nil || ev.Limits == nil || ev.Limits.ActionMM != 2.5 ||
+		ch.Series.ID != *sid {
+		t.Errorf("chart: level %d, %d points, limits %+v", ev.Level, len(ev.Chart.Points), ev.Limits)
 	}
 	e.mustDo("GET", "/api/v1/series/999999/chart", halfmark.RoleTherapist, "", 404, nil)
+}
+
+// The findings API: one finding for the 3 mm step of jaw X1, read by
+// therapists, acknowledged and resolved by physicists.
+func TestFindingsAPI(t *testing.T) {
+	e, _ := newDriftEnv(t)
+	var list struct {
+		Findings []halfmark.Finding `json:"findings"`
+	}
+	e.mustDo("GET", fmt.Sprintf("/api/v1/findings?machine_id=%d", e.mach), halfmark.RoleTherapist, "", 200, &list)
+	if len(list.Findings) != 1 || list.Findings[0].Kind != halfmark.ComponentJaw || list.Findings[0].Name != "X1" ||
+		list.Findings[0].Level != halfmark.LevelImmediate || len(list.Findings[0].Evidence) == 0 {
+		t.Fatalf("findings %+v", list.Findings)
+	}
+	id := list.Findings[0].ID
+	var st struct {
+		Machines []halfmark.MachineStatus `json:"machines"`
+	}
+	e.mustDo("GET", "/api/v1/status", halfmark.RoleTherapist, "", 200, &st)
+	if w := st.Machines[0].Worst; w == nil || w.FindingID == nil || *w.FindingID != id || st.Machines[0].Findings != 1 {
+		t.Errorf("status %+v: want the worst to name finding %d and a count of 1", st.Machines[0], id)
+	}
+	for _, q := range []string{"state=closed", "machine_id=x"} {
+		if code, h, _ := e.do("GET", "/api/v1/findings?"+q, halfmark.RoleTherapist, ""); code != 422 || h.Get("Content-Type") != api.ProblemContentType {
+			t.Errorf("bad filter %s: %d, want 422 problem+json", q, code)
+		}
+	}
+	var one halfmark.Finding
+	e.mustDo("GET", fmt.Sprintf("/api/v1/findings/%d", id), halfmark.RoleTherapist, "", 200, &one)
+	e.mustDo("GET", "/api/v1/findings/999999", halfmark.RoleTherapist, "", 404, nil)
+	ack := fmt.Sprintf("/api/v1/findings/%d/acknowledge", id)
+	e.mustDo("POST", ack, halfmark.RoleTherapist, `{"comment":"seen"}`, 403, nil)
+	e.mustDo("POST", ack, halfmark.RolePhysicist, `{"comment":"seen"}`, 200, &one)
+	if one.State != halfmark.FindingAcknowledged || one.AckComment != "seen" {
+		t.Errorf("acknowledged %+v", one)
+	}
+	e.mustDo("POST", ack, halfmark.RolePhysicist, `{"comment":"again"}`, 409, nil)
+	res := fmt.Sprintf("/api/v1/findings/%d/resolve", id)
+	e.mustDo("POST", res, halfmark.RolePhysicist, `{"comment":""}`, 422, nil)
+	e.mustDo("POST", res, halfmark.RolePhysicist, `{"comment":"jaw recalibrated"}`, 200, &one)
+	e.mustDo("GET", "/api/v1/findings?state=resolved", halfmark.RoleTherapist, "", 200, &list)
+	if len(list.Findings) != 1 || list.Findings[0].State != halfmark.FindingResolved {
+		t.Errorf("resolved findings %+v", list.Findings)
+	}
+	e.mustDo("GET", "/api/v1/findings", halfmark.RoleTherapist, "", 200, &list)
+	if len(list.Findings) != 0 {
+		t.Errorf("%d active findings after resolving the only one", len(list.Findings))
+	}
 }
 
 func TestServiceEventsAPI(t *testing.T) {

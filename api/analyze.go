@@ -3,6 +3,7 @@ package api
 import (
 	"fmt"
 	"io"
+	"math"
 	"mime"
 	"net/http"
 	"strconv"
@@ -98,7 +99,16 @@ func profileParams(c echo.Context, f *halfmark.Fields) rawdata.ProfileParams {
 }
 
 func imageParams(c echo.Context, f *halfmark.Fields) rawdata.ImageParams {
-	return rawdata.ImageParams{SIDmm: queryFloat(c, "sid_mm", f), SADmm: queryFloat(c, "sad_mm", f), PixelMM: queryFloat(c, "pixel_mm", f)}
+	p := rawdata.ImageParams{SIDmm: queryFloat(c, "sid_mm", f), SADmm: queryFloat(c, "sad_mm", f), PixelMM: queryFloat(c, "pixel_mm", f)}
+	if s := c.QueryParam("collimator_deg"); s != "" {
+		v, err := strconv.ParseFloat(s, 64)
+		if err != nil || math.IsNaN(v) || math.IsInf(v, 0) || v < -360 || v > 360 {
+			f.Add("collimator_deg", "must be the collimator angle in degrees, -360 to 360 (got %q)", s)
+		} else {
+			p.CollimatorDeg = &v
+		}
+	}
+	return p
 }
 
 func (h *handlers) analyzeProfile(c echo.Context) error {

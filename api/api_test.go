@@ -40,17 +40,9 @@ func newHTTPServer(h http.Handler) *httptest.Server { return httptest.NewServer(
 func newBenchEnv(t testing.TB) *env {
 	t.Helper()
 	ctx := context.Background()
-	url := dbtest.New(t)
-	if err := db.Migrate(ctx, url, nil); err != nil {
-		t.Fatal(err)
-	}
-	d, err := db.Open(ctx, url)
-	if err != nil {
-		t.Fatal(err)
-	}
-	t.Cleanup(d.Close)
+	d := dbtest.Open(t)
 	e := &env{t: t, db: d, tokens: map[halfmark.Role]string{}}
-	e.srv = newHTTPServer(api.New(api.Services{Machines: d, Checks: d, Series: d, Auth: d, Audit: d, Pinger: d, Raw: d, Metrics: api.NewMetrics(d)}))
+	e.srv = newHTTPServer(api.New(api.Services{Machines: d, Checks: d, Series: d, Auth: d, Audit: d, Pinger: d, Raw: d, Metrics: api.NewMetrics(d), Penumbra: d}))
 	t.Cleanup(e.srv.Close)
 	for _, r := range []halfmark.Role{halfmark.RoleTherapist, halfmark.RolePhysicist, halfmark.RoleAdmin} {
 		_, s, err := d.CreateToken(ctx, halfmark.CLIActor("test"), "t-"+string(r), r)
@@ -139,7 +131,7 @@ type storedCheck struct {
 // Projection to the isocentre plane, checked by hand: a 50% point measured
 // 55.1 mm from the axis at SSD 100 cm, depth 10 cm, SAD 100 cm lies at
 // 55.1 × 100 / (100 + 10) = 50.0909 mm in the isocentre plane
-// (magnification by SAD/(SSD + d), common practice; physics.md).
+// (magnification by SAD/(SSD + d): similar triangles, common practice).
 func TestProjectionToIsocentreMatchesHandCalculation(t *testing.T) {
 	e := newEnv(t)
 	var sc storedCheck

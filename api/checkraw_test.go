@@ -32,7 +32,7 @@ func rawForm(t *testing.T, check, kind, options, filename string, data []byte) (
 // store's convention. A 20×20 cm field scanned at SSD 90 cm, depth 10 cm
 // lies in a plane 100 cm from the source, the isocentre plane (SAD 100 cm),
 // so each edge is at 100 mm (erf edges: 50% at the geometric edge,
-// physics.md).
+// derived).
 func TestCheckFromRawProfileAndRecompute(t *testing.T) {
 	e := newEnv(t)
 	var prof strings.Builder

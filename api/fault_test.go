@@ -157,6 +157,16 @@ func TestDatabaseRestartLosesNoAcknowledgedCheck(t *testing.T) {
 	if failed == 0 {
 		t.Error("no request failed: the outage was not exercised")
 	}
+	// The README's claim: refused with 503 during the outage. Every
+	// refusal is a 503 (no 500, no other status, no dropped connection).
+	if statuses[503] == 0 {
+		t.Error("no 503 during the outage")
+	}
+	for code, n := range statuses {
+		if code != 200 && code != 201 && code != 503 {
+			t.Errorf("%d requests answered %d during the outage; want 503 (0 = no answer)", n, code)
+		}
+	}
 	ids := make([]string, 0, len(acked))
 	for id := range acked {
 		ids = append(ids, id)

@@ -16,6 +16,8 @@ type machineRequest struct {
 	MLCLeafPairs int      `json:"mlc_leaf_pairs"`
 	MLCLayout    string   `json:"mlc_layout"`
 	Clinical     *bool    `json:"clinical"`
+
+	Collimators *halfmark.Collimators `json:"collimators"`
 }
 
 func (h *handlers) createMachine(c echo.Context) error {
@@ -24,7 +26,7 @@ func (h *handlers) createMachine(c echo.Context) error {
 		return err
 	}
 	m := halfmark.Machine{Name: req.Name, Model: req.Model, Serial: req.Serial, MLCLeafPairs: req.MLCLeafPairs,
-		MLCLayout: req.MLCLayout, SADcm: 100, Clinical: true}
+		MLCLayout: req.MLCLayout, SADcm: 100, Clinical: true, Collimators: req.Collimators}
 	if req.SADcm != nil {
 		m.SADcm = *req.SADcm
 		if m.SADcm == 0 {
@@ -38,6 +40,32 @@ func (h *handlers) createMachine(c echo.Context) error {
 		return err
 	}
 	return c.JSON(http.StatusCreated, m)
+}
+
+// machinePatch is the body of PATCH /machines/{id}: the collimator
+// geometry is the one field that may change.
+type machinePatch struct {
+	Collimators *halfmark.Collimators `json:"collimators"`
+}
+
+func (h *handlers) patchMachine(c echo.Context) error {
+	id, err := pathID(c, "id")
+	if err != nil {
+		return err
+	}
+	var req machinePatch
+	if err := decodeJSON(c, &req); err != nil {
+		return err
+	}
+	if req.Collimators == nil {
+		return halfmark.Invalid("nothing to change", halfmark.FieldError{Field: "collimators",
+			Message: "is required: {\"upper_jaws\": \"X\" or \"Y\", \"upper_scd_cm\", \"lower_scd_cm\", \"mlc_scd_cm\"}"})
+	}
+	m, err := h.s.Machines.SetCollimators(c.Request().Context(), actor(c), id, *req.Collimators)
+	if err != nil {
+		return err
+	}
+	return c.JSON(http.StatusOK, m)
 }
 
 func (h *handlers) listMachines(c echo.Context) error {

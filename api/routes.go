@@ -24,6 +24,9 @@ func (h *handlers) routes(e *echo.Echo) {
 	v1.GET("/machines/:id/reports/:month", h.getReportDraft, therapist)
 	v1.GET("/machines/:id/reports/:month/signed", h.getSignedReport, therapist)
 	v1.POST("/machines/:id/reports/:month/sign", h.signReport, physicist)
+	v1.PATCH("/machines/:id", h.patchMachine, admin)
+	v1.GET("/beams/:id/penumbra-model", h.getPenumbraModel, therapist)
+	v1.POST("/beams/:id/penumbra-model/predict", h.predictPenumbra, therapist)
 
 	v1.POST("/checks", h.createCheck, therapist)
 	v1.POST("/checks/batch", h.createBatch, therapist)
@@ -54,6 +57,10 @@ func (h *handlers) routes(e *echo.Echo) {
 	v1.POST("/alerts/:id/acknowledge", h.acknowledgeAlert, physicist)
 	v1.POST("/alerts/:id/resolve", h.resolveAlert, physicist)
 	v1.GET("/series/:id/chart", h.seriesChart, therapist)
+	v1.GET("/findings", h.listFindings, therapist)
+	v1.GET("/findings/:id", h.getFinding, therapist)
+	v1.POST("/findings/:id/acknowledge", h.acknowledgeFinding, physicist)
+	v1.POST("/findings/:id/resolve", h.resolveFinding, physicist)
 	v1.GET("/machines/:id/service-events", h.listServiceEvents, therapist)
 	v1.POST("/machines/:id/service-events", h.createServiceEvent, physicist)
 }

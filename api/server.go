@@ -14,17 +14,18 @@ import (
 
 // Services are what the API needs; db.DB implements all of them.
 type Services struct {
-	Machines halfmark.MachineService
-	Checks   halfmark.CheckService
-	Series   halfmark.SeriesService
-	Auth     halfmark.AuthService
-	Audit    halfmark.AuditService
-	Pinger   halfmark.Pinger
-	Alerts   halfmark.AlertService  // alert list and lifecycle
-	Status   halfmark.StatusService // the front page
-	Events   EventService           // service events
-	Charts   ChartService           // series charts (nil: the chart route answers 503)
-	Raw      halfmark.RawService    // raw data behind checks
+	Machines    halfmark.MachineService
+	Checks      halfmark.CheckService
+	Series      halfmark.SeriesService
+	Auth        halfmark.AuthService
+	Audit       halfmark.AuditService
+	Pinger      halfmark.Pinger
+	Alerts      halfmark.AlertService      // alert list and lifecycle
+	Status      halfmark.StatusService     // the front page
+	Events      EventService               // service events
+	Findings    halfmark.FindingService    // findings and their lifecycle (nil: 503)
+	Evaluations halfmark.EvaluationService // the engine's stored judgements (nil: charts answer 503)
+	Raw         halfmark.RawService        // raw data behind checks
 	// Reports keeps signed monthly reports; ReportRenderer renders drafts
 	// (nil: the report routes answer 503).
 	Reports        halfmark.ReportService
@@ -32,6 +33,8 @@ type Services struct {
 	Metrics        *Metrics // nil: no /metrics
 	Log            *slog.Logger
 	Now            func() time.Time
+
+	Penumbra halfmark.PenumbraService // penumbra model data (nil: its routes answer 503)
 }
 
 // New returns an echo server with the error handler and the API routes.

@@ -16,6 +16,9 @@ func (d *DB) RecordCheckWithRaw(ctx context.Context, a halfmark.Actor, c *halfma
 	if err := validateRaw(r, false); err != nil {
 		return halfmark.StoredCheck{}, false, err
 	}
+	if c.Method == "" {
+		c.Method = halfmark.InferMethod(c.Device, r.Kind)
+	}
 	res, err := d.record(ctx, a, []halfmark.Check{*c}, "", func(tx pgx.Tx, isNew map[string]bool) error {
 		for id := range isNew {
 			r.CheckID = id

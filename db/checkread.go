@@ -9,19 +9,19 @@ import (
 	"halfmark"
 )
 
-const checkCols = `c.id::text, c.machine_id, c.beam_id, c.kind, c.measured_at, c.device, c.operator, c.note,
+const checkCols = `c.id::text, c.machine_id, c.beam_id, c.kind, c.measured_at, c.device, c.method, c.operator, c.note,
 	c.ssd_cm, c.depth_cm, c.field_x_cm, c.field_y_cm, c.collimator_deg, c.gantry_deg,
 	coalesce(c.supersedes::text, ''), coalesce((SELECT s.id::text FROM checks s WHERE s.supersedes = c.id), ''),
 	c.analysis_version, c.created_at, c.created_by`
 
 func scanCheck(r pgx.Row) (halfmark.Check, error) {
 	var c halfmark.Check
-	var kind string
+	var kind, method string
 	s := &c.Setup
-	err := r.Scan(&c.ID, &c.MachineID, &c.BeamID, &kind, &c.MeasuredAt, &c.Device, &c.Operator, &c.Note,
+	err := r.Scan(&c.ID, &c.MachineID, &c.BeamID, &kind, &c.MeasuredAt, &c.Device, &method, &c.Operator, &c.Note,
 		&s.SSDcm, &s.DepthCm, &s.FieldXcm, &s.FieldYcm, &s.CollimatorDeg, &s.GantryDeg,
 		&c.Supersedes, &c.SupersededBy, &c.AnalysisVersion, &c.CreatedAt, &c.CreatedBy)
-	c.Kind = halfmark.CheckKind(kind)
+	c.Kind, c.Method = halfmark.CheckKind(kind), halfmark.Method(method)
 	return c, err
 }
 
@@ -38,9 +38,9 @@ var edgeOutcomesSQL = `SELECT er.edge, er.position_mm, er.iso_position_mm, er.pe
 			AS (edge text, position_mm float8, iso_position_mm float8, penumbra_mm float8, light_position_mm float8,
 				iso_light_position_mm float8)) WITH ORDINALITY
 			AS er(edge, position_mm, iso_position_mm, penumbra_mm, light_position_mm, iso_light_position_mm, n)
-		LEFT JOIN series sp ON sp.machine_id = c.machine_id AND sp.beam_id = c.beam_id AND sp.geometry = c.geometry
+		LEFT JOIN series sp ON sp.machine_id = c.machine_id AND sp.beam_id = c.beam_id AND sp.geometry = c.geometry AND sp.method = c.method
 			AND sp.edge = er.edge AND sp.quantity = 'position'
-		LEFT JOIN series sn ON sn.machine_id = c.machine_id AND sn.beam_id = c.beam_id AND sn.geometry = c.geometry
+		LEFT JOIN series sn ON sn.machine_id = c.machine_id AND sn.beam_id = c.beam_id AND sn.geometry = c.geometry AND sn.method = c.method
 			AND sn.edge = er.edge AND sn.quantity = 'penumbra'
 		` + fmt.Sprintf(baselineAt, "sp", "bp") + `
 		` + fmt.Sprintf(baselineAt, "sn", "bn") + `

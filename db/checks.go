@@ -103,6 +103,9 @@ func (d *DB) Prepare(ctx context.Context, cs []halfmark.Check, prefix string) er
 // runs in the same transaction once the new checks are written.
 func (d *DB) record(ctx context.Context, a halfmark.Actor, cs []halfmark.Check, prefix string,
 	after func(tx pgx.Tx, isNew map[string]bool) error) (halfmark.BatchResult, error) {
+	if err := halfmark.SetMethods(cs, "", prefix); err != nil {
+		return halfmark.BatchResult{}, err
+	}
 	if err := d.Prepare(ctx, cs, prefix); err != nil {
 		return halfmark.BatchResult{}, err
 	}
@@ -224,16 +227,16 @@ func supersedeErr(err error) error {
 // upsertSeries creates the series the new checks add points to.
 func upsertSeries(ctx context.Context, tx pgx.Tx, cs []halfmark.Check, isNew map[string]bool) error {
 	type key struct {
-		m, b    int64
-		g, e, q string
+		m, b       int64
+		g, e, q, t string
 	}
 	seen := map[key]bool{}
 	var ms, bs []int64
-	var gs, es, qs []string
+	var gs, es, qs, ts []string
 	add := func(k key) {
 		if !seen[k] {
 			seen[k] = true
-			ms, bs, gs, es, qs = append(ms, k.m), append(bs, k.b), append(gs, k.g), append(es, k.e), append(qs, k.q)
+			ms, bs, gs, es, qs, ts = append(ms, k.m), append(bs, k.b), append(gs, k.g), append(es, k.e), append(qs, k.q), append(ts, k.t)
 		}
 	}
 	for i := range cs {
@@ -241,20 +244,20 @@ func upsertSeries(ctx context.Context, tx pgx.Tx, cs []halfmark.Check, isNew map
 		if !isNew[c.ID] {
 			continue
 		}
-		g := c.Setup.Geometry()
+		g, t := c.Setup.Geometry(), string(c.Method)
 		for _, e := range c.Edges {
-			add(key{c.MachineID, c.BeamID, g, e.Edge, string(halfmark.QPosition)})
+			add(key{c.MachineID, c.BeamID, g, e.Edge, string(halfmark.QPosition), t})
 			if e.PenumbraMM != nil {
-				add(key{c.MachineID, c.BeamID, g, e.Edge, string(halfmark.QPenumbra)})
+				add(key{c.MachineID, c.BeamID, g, e.Edge, string(halfmark.QPenumbra), t})
 			}
 			if e.LightPositionMM != nil {
-				add(key{c.MachineID, c.BeamID, g, e.Edge, string(halfmark.QLightOffset)})
+				add(key{c.MachineID, c.BeamID, g, e.Edge, string(halfmark.QLightOffset), t})
 			}
 		}
 	}
-	_, err := tx.Exec(ctx, `INSERT INTO series (machine_id, beam_id, geometry, edge, quantity)
-		SELECT * FROM unnest($1::bigint[], $2::bigint[], $3::text[], $4::text[], $5::text[])
-		ORDER BY 1, 2, 3, 4, 5 ON CONFLICT DO NOTHING`, ms, bs, gs, es, qs)
+	_, err := tx.Exec(ctx, `INSERT INTO series (machine_id, beam_id, geometry, edge, quantity, method)
+		SELECT * FROM unnest($1::bigint[], $2::bigint[], $3::text[], $4::text[], $5::text[], $6::text[])
+		ORDER BY 1, 2, 3, 4, 5, 6 ON CONFLICT DO NOTHING`, ms, bs, gs, es, qs, ts)
 	return err
 }
 

@@ -9,11 +9,14 @@ import (
 	"halfmark"
 )
 
-const machineCols = `id, name, sad_cm, model, serial, mlc_leaf_pairs, mlc_layout, clinical, created_at`
+const machineCols = `id, name, sad_cm, model, serial, mlc_leaf_pairs, mlc_layout, clinical, created_at, ` + collimatorCols
 
 func scanMachine(r pgx.Row) (halfmark.Machine, error) {
 	var m halfmark.Machine
-	err := r.Scan(&m.ID, &m.Name, &m.SADcm, &m.Model, &m.Serial, &m.MLCLeafPairs, &m.MLCLayout, &m.Clinical, &m.CreatedAt)
+	var c collimatorRow
+	err := r.Scan(&m.ID, &m.Name, &m.SADcm, &m.Model, &m.Serial, &m.MLCLeafPairs, &m.MLCLayout, &m.Clinical, &m.CreatedAt,
+		&c.upperJaws, &c.upperSCD, &c.lowerSCD, &c.mlcSCD)
+	m.Collimators = c.collimators()
 	return m, err
 }
 
@@ -23,9 +26,11 @@ func (d *DB) CreateMachine(ctx context.Context, a halfmark.Actor, m *halfmark.Ma
 		return err
 	}
 	err := d.tx(ctx, func(tx pgx.Tx) error {
-		row := tx.QueryRow(ctx, `INSERT INTO machines (name, sad_cm, model, serial, mlc_leaf_pairs, mlc_layout, clinical, created_by)
-			VALUES ($1,$2,$3,$4,$5,$6,$7,$8) ON CONFLICT (name) DO NOTHING RETURNING id, created_at`,
-			m.Name, m.SADcm, m.Model, m.Serial, m.MLCLeafPairs, m.MLCLayout, m.Clinical, a.Name)
+		c := collimatorArgs(m.Collimators)
+		row := tx.QueryRow(ctx, `INSERT INTO machines (name, sad_cm, model, serial, mlc_leaf_pairs, mlc_layout, clinical, created_by,
+			upper_jaws, upper_scd_cm, lower_scd_cm, mlc_scd_cm)
+			VALUES ($1,$2,$3,$4,$5,$6,$7,$8,$9,$10,$11,$12) ON CONFLICT (name) DO NOTHING RETURNING id, created_at`,
+			m.Name, m.SADcm, m.Model, m.Serial, m.MLCLeafPairs, m.MLCLayout, m.Clinical, a.Name, c[0], c[1], c[2], c[3])
 		if err := row.Scan(&m.ID, &m.CreatedAt); err != nil {
 			if err == pgx.ErrNoRows {
 				return halfmark.Errorf(halfmark.EConflict, "a machine named %q already exists; choose another name", m.Name)

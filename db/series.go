@@ -27,16 +27,16 @@ func scanBaseline(r pgx.Row) (halfmark.Baseline, error) {
 	return b, err
 }
 
-const seriesSQL = `SELECT s.id, s.machine_id, s.beam_id, s.geometry, s.edge, s.quantity,
+const seriesSQL = `SELECT s.id, s.machine_id, s.beam_id, s.geometry, s.edge, s.quantity, s.method,
 		(SELECT count(*) FROM series_points p WHERE p.series_id = s.id),
 		(SELECT max(p.measured_at) FROM series_points p WHERE p.series_id = s.id)
 	FROM series s`
 
 func scanSeries(r pgx.Row) (halfmark.Series, error) {
 	var s halfmark.Series
-	var q string
-	err := r.Scan(&s.ID, &s.MachineID, &s.BeamID, &s.Geometry, &s.Edge, &q, &s.Points, &s.LastAt)
-	s.Quantity = halfmark.Quantity(q)
+	var q, m string
+	err := r.Scan(&s.ID, &s.MachineID, &s.BeamID, &s.Geometry, &s.Edge, &q, &m, &s.Points, &s.LastAt)
+	s.Quantity, s.Method = halfmark.Quantity(q), halfmark.Method(m)
 	return s, err
 }
 
@@ -45,7 +45,7 @@ func (d *DB) MachineSeries(ctx context.Context, machineID int64) ([]halfmark.Ser
 	if _, err := d.Machine(ctx, machineID); err != nil {
 		return nil, err
 	}
-	rows, err := d.Pool.Query(ctx, seriesSQL+` WHERE s.machine_id = $1 ORDER BY s.beam_id, s.geometry, s.edge, s.quantity`, machineID)
+	rows, err := d.Pool.Query(ctx, seriesSQL+` WHERE s.machine_id = $1 ORDER BY s.beam_id, s.geometry, s.method, s.edge, s.quantity`, machineID)
 	if err != nil {
 		return nil, mapErr(err)
 	}

@@ -8,23 +8,11 @@ import (
 	"halfmark"
 )
 
-// StatusOptions say when a check is overdue.
-type StatusOptions struct {
-	// MorningInterval + MorningGrace is the longest a beam may go without a
-	// morning check (default 24 h + 6 h). With SkipWeekends, time on
-	// Saturdays and Sundays (in Location) does not count: a Friday check
-	// covers the weekend (TG-142 daily checks are per treatment day).
-	MorningInterval, MorningGrace time.Duration
-	SkipWeekends                  bool
-	// MonthlyInterval is the longest a beam may go without a monthly check
-	// (default 31 days).
-	MonthlyInterval time.Duration
-	Location        *time.Location
-}
+// StatusOptions say when a check is overdue (the domain type).
+type StatusOptions = halfmark.StatusOptions
 
 // DefaultStatusOptions are the defaults of StatusOptions.
-var DefaultStatusOptions = StatusOptions{MorningInterval: 24 * time.Hour, MorningGrace: 6 * time.Hour, SkipWeekends: true,
-	MonthlyInterval: 31 * 24 * time.Hour, Location: time.Local}
+var DefaultStatusOptions = halfmark.DefaultStatusOptions
 
 // Status implements halfmark.StatusService with DefaultStatusOptions.
 func (d *DB) Status(ctx context.Context) ([]halfmark.MachineStatus, error) {
@@ -33,8 +21,8 @@ func (d *DB) Status(ctx context.Context) ([]halfmark.MachineStatus, error) {
 
 // StatusWith answers the front page at now: machines ordered Level 3, 2,
 // 1, then overdue, then in control (by name within each). A machine's
-// level is the highest current level of its series; its worst series is
-// the one with that level and the largest |deviation|/tolerance. A beam is
+// level is the highest level of its active findings (the drift engine's
+// decision); its worst is the most urgent of them (worstFindings). A beam is
 // overdue when its last morning or monthly check is older than its
 // interval; a beam that never had a check of that kind is overdue only on
 // a clinical machine.
@@ -43,7 +31,8 @@ func (d *DB) StatusWith(ctx context.Context, now time.Time, o StatusOptions) ([]
 		o.Location = time.Local
 	}
 	rows, err := d.Pool.Query(ctx, `SELECT m.id, m.name, m.clinical,
-			coalesce((SELECT max(st.level) FROM series_state st JOIN series s ON s.id = st.series_id WHERE s.machine_id = m.id), 0),
+			coalesce((SELECT max(f.level) FROM findings f WHERE f.machine_id = m.id AND f.state <> 'resolved'), 0),
+			(SELECT count(*) FROM findings f WHERE f.machine_id = m.id AND f.state <> 'resolved'),
 			(SELECT count(*) FROM alerts a WHERE a.machine_id = m.id AND a.state <> 'resolved'),
 			(SELECT max(c.measured_at) FROM checks c WHERE c.machine_id = m.id)
 		FROM machines m ORDER BY m.name`)
@@ -56,7 +45,7 @@ func (d *DB) StatusWith(ctx context.Context, now time.Time, o StatusOptions) ([]
 	for rows.Next() {
 		var ms halfmark.MachineStatus
 		var cl bool
-		if err := rows.Scan(&ms.ID, &ms.Name, &cl, &ms.Level, &ms.OpenAlerts, &ms.LastCheckAt); err != nil {
+		if err := rows.Scan(&ms.ID, &ms.Name, &cl, &ms.Level, &ms.Findings, &ms.OpenAlerts, &ms.LastCheckAt); err != nil {
 			rows.Close()
 			return nil, mapErr(err)
 		}
@@ -67,7 +56,7 @@ func (d *DB) StatusWith(ctx context.Context, now time.Time, o StatusOptions) ([]
 	if err := rows.Err(); err != nil {
 		return nil, mapErr(err)
 	}
-	if err := d.worstSeries(ctx, out, idx); err != nil {
+	if err := d.worstFindings(ctx, out, idx); err != nil {
 		return nil, err
 	}
 	brows, err := d.Pool.Query(ctx, `SELECT b.machine_id,
@@ -117,31 +106,42 @@ func rank(m halfmark.MachineStatus) int {
 	return 0
 }
 
-// worstSeries picks each machine's most urgent series: the highest level,
-// then the soonest projected crossing of a limit (how soon), then the
-// largest deviation as a share of its tolerance (how far).
-func (d *DB) worstSeries(ctx context.Context, out []halfmark.MachineStatus, idx map[int64]int) error {
-	rows, err := d.Pool.Query(ctx, `SELECT DISTINCT ON (s.machine_id) s.machine_id, s.id, s.beam_id, b.energy_mv, b.fff, s.edge, s.quantity,
-			s.geometry, st.deviation_mm, st.tolerance_mm, st.action_mm, st.rule, st.projected_crossing
-		FROM series_state st JOIN series s ON s.id = st.series_id JOIN beams b ON b.id = s.beam_id
-		WHERE st.level > 0 OR st.projected_crossing IS NOT NULL
-		ORDER BY s.machine_id, st.level DESC, st.projected_crossing NULLS LAST,
-			abs(st.deviation_mm) / nullif(st.tolerance_mm, 0) DESC NULLS LAST`)
+// worstFindings names each machine's most urgent active finding: the
+// highest level, then the soonest projected tolerance crossing (how soon),
+// then the largest |magnitude| (how far). The series fields are those of
+// its first evidence series.
+func (d *DB) worstFindings(ctx context.Context, out []halfmark.MachineStatus, idx map[int64]int) error {
+	rows, err := d.Pool.Query(ctx, `SELECT DISTINCT ON (f.machine_id) f.machine_id, f.id, f.component_kind, f.component, f.level,
+			f.magnitude_mm, f.message, (f.crossing->>'tolerance_date')::timestamptz,
+			coalesce(s.id, 0), coalesce(s.beam_id, 0), b.energy_mv, b.fff, coalesce(s.edge, ''), coalesce(s.quantity, ''),
+			coalesce(s.geometry, ''), st.tolerance_mm, st.action_mm
+		FROM findings f
+		LEFT JOIN series s ON s.id = (f.evidence->0->>'series_id')::bigint
+		LEFT JOIN beams b ON b.id = s.beam_id
+		LEFT JOIN series_state st ON st.series_id = s.id
+		WHERE f.state <> 'resolved'
+		ORDER BY f.machine_id, f.level DESC, (f.crossing->>'tolerance_date')::timestamptz NULLS LAST, abs(f.magnitude_mm) DESC, f.id`)
 	if err != nil {
 		return mapErr(err)
 	}
 	defer rows.Close()
 	for rows.Next() {
-		var mid int64
+		var mid, fid int64
 		var w halfmark.WorstSeries
-		var energy float64
-		var fff bool
-		var q string
-		if err := rows.Scan(&mid, &w.SeriesID, &w.BeamID, &energy, &fff, &w.Edge, &q, &w.Geometry, &w.DeviationMM,
-			&w.ToleranceMM, &w.ActionMM, &w.Rule, &w.ProjectedCrossing); err != nil {
+		var energy *float64
+		var fff *bool
+		var q, kind string
+		var level int
+		var mag float64
+		if err := rows.Scan(&mid, &fid, &kind, &w.Component, &level, &mag, &w.Rule, &w.ProjectedCrossing,
+			&w.SeriesID, &w.BeamID, &energy, &fff, &w.Edge, &q, &w.Geometry, &w.ToleranceMM, &w.ActionMM); err != nil {
 			return mapErr(err)
 		}
-		w.BeamLabel, w.Quantity = halfmark.BeamLabel(energy, fff), halfmark.Quantity(q)
+		w.FindingID, w.ComponentKind, w.DeviationMM = &fid, halfmark.ComponentKind(kind), &mag
+		w.Quantity = halfmark.Quantity(q)
+		if energy != nil {
+			w.BeamLabel = halfmark.BeamLabel(*energy, fff != nil && *fff)
+		}
 		if i, ok := idx[mid]; ok {
 			out[i].Worst = &w
 		}

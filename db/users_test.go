@@ -18,16 +18,7 @@ import (
 
 func openTestDB(t *testing.T) *db.DB {
 	t.Helper()
-	url := dbtest.New(t)
-	ctx := context.Background()
-	if err := db.Migrate(ctx, url, nil); err != nil {
-		t.Fatal(err)
-	}
-	d, err := db.Open(ctx, url)
-	if err != nil {
-		t.Fatal(err)
-	}
-	t.Cleanup(d.Close)
+	d := dbtest.Open(t)
 	return d
 }
 

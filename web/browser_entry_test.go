@@ -43,7 +43,7 @@ func TestBrowserEntryAndFindings(t *testing.T) {
 	must(t, strings.Contains(title, "MLC bank 2") && strings.Contains(title, "Heron"), "finding title %q", title)
 
 	// A check typed in cm: the entry asks before saving.
-	before := h.count(`SELECT count(*) FROM checks`)
+	before := h.nChecks()
 	step(t, ctx, "open entry", chromedp.Navigate(fmt.Sprintf("%s/entry?machine=%d", base, mid)), chromedp.WaitVisible(chromedp.ID("x1")))
 	checkID := get(t, ctx, "check id", chromedp.Evaluate[string](`document.querySelector("input[name=check_id]").value`))
 	// What the engine stores for 5 mm against a 50 mm baseline: −45 mm, Level 3.
@@ -61,14 +61,14 @@ func TestBrowserEntryAndFindings(t *testing.T) {
 	shot(t, ctx, dir, "12-entry-cm-prompt.png")
 	prompt := get(t, ctx, "prompt", chromedp.Text(chromedp.ID("plausibility")))
 	must(t, strings.Contains(prompt, "looks typed in cm") && strings.Contains(prompt, "45 mm from the nominal half-field"), "prompt:\n%s", prompt)
-	must(t, h.count(`SELECT count(*) FROM checks`) == before, "saved before confirmation")
+	must(t, h.nChecks() == before, "saved before confirmation")
 	active := get(t, ctx, "active element", chromedp.Evaluate[string](`document.activeElement.id`))
 	must(t, active == "confirm", "the cursor is in %q; want the confirm button", active)
 
 	// Saved as typed: the engine's Level 3, large, with the instruction.
 	step(t, ctx, "save as typed", chromedp.Click(chromedp.ID("confirm")), chromedp.WaitVisible(chromedp.ID("verdict-alarm")))
 	shot(t, ctx, dir, "13-entry-level3.png")
-	must(t, h.count(`SELECT count(*) FROM checks`) == before+1, "not saved after confirmation")
+	must(t, h.nChecks() == before+1, "not saved after confirmation")
 	alarm := get(t, ctx, "alarm", chromedp.Text(chromedp.ID("verdict-alarm")))
 	must(t, strings.Contains(alarm, "Level 3") && strings.Contains(alarm, web.DefaultInstruction), "alarm:\n%s", alarm)
 	big := get(t, ctx, "font size", chromedp.Evaluate[string](`getComputedStyle(document.querySelector("#verdict-alarm .verdict-level")).fontSize`))
@@ -92,6 +92,6 @@ func TestBrowserEntryAndFindings(t *testing.T) {
 	shot(t, ctx, dir, "14-entry-corrected.png")
 	head := get(t, ctx, "verdict head", chromedp.Text(chromedp.CSS("section.verdict h2")))
 	must(t, strings.Contains(head, "corrects check "+checkID), "verdict head %q", head)
-	must(t, h.count(`SELECT count(*) FROM checks WHERE supersedes = $1`, checkID) == 1, "no check supersedes %s", checkID)
-	must(t, h.count(`SELECT count(*) FROM audit_log WHERE action = 'correct' AND detail->>'note' LIKE '%typed in cm%'`) == 1, "correction not audited with its reason")
+	must(t, h.superseding(checkID) == 1, "no check supersedes %s", checkID)
+	must(t, h.correctionAudited(checkID, "typed in cm"), "correction not audited with its reason")
 }

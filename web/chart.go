@@ -46,7 +46,7 @@ type chartSpec struct {
 	HasLimits  bool
 	UCL, LCL   float64
 	HasControl bool
-	Trend      *spc.TrendResult
+	Trend      *halfmark.SeriesTrend
 	TrendFrom  time.Time
 	TrendTo    time.Time
 	Compact    bool
@@ -61,10 +61,9 @@ func specFor(v seriesView, compact bool, now time.Time) chartSpec {
 	for i, p := range v.Points {
 		sp.Times[i], sp.Values[i] = p.MeasuredAt, p.Value
 	}
-	if v.Trend != nil && v.Start < len(v.Points) {
-		sp.TrendFrom = v.Points[v.Start].MeasuredAt
-		sp.TrendTo = v.Points[len(v.Points)-1].MeasuredAt
-		if v.Crossing != nil && v.Crossing.Sub(sp.TrendTo) < 365*24*time.Hour {
+	if v.Trend != nil && v.Trend.Significant {
+		sp.TrendFrom, sp.TrendTo = v.Trend.From, v.Trend.To
+		if v.Crossing != nil && v.Crossing.After(sp.TrendTo) {
 			sp.TrendTo = *v.Crossing
 		}
 	}
@@ -176,7 +175,8 @@ func valuePlot(sp chartSpec) *plot.Plot {
 	}
 	if tr := sp.Trend; tr != nil && !sp.TrendFrom.IsZero() {
 		a, b := sp.TrendFrom, sp.TrendTo
-		ya, yb := tr.ValueAt(tr.Day(a)), tr.ValueAt(tr.Day(b))
+		perDay := tr.SlopePer30dMM / 30
+		ya, yb := tr.FromMM, tr.FromMM+perDay*b.Sub(a).Hours()/24
 		if l, err := plotter.NewLine(plotter.XYs{{X: unix(a), Y: ya}, {X: unix(b), Y: yb}}); err == nil {
 			l.Color, l.Width, l.Dashes = trendColour, vg.Points(1.2), []vg.Length{vg.Points(1), vg.Points(2)}
 			p.Add(l)

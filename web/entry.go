@@ -404,7 +404,7 @@ func (s *server) verdictFor(ctx context.Context, st halfmark.StoredCheck, create
 			ev, err := s.d.Evaluations.SeriesEvaluation(ctx, e.SeriesID)
 			if err == nil && evaluatedCheck(ev, st.ID) {
 				r.Pending, r.Level, r.DeviationMM = false, ev.Level, ev.DeviationMM
-				r.Text = verdictText(ev.Verdict, ev.Level)
+				r.Text = engineVerdictText(ev.Verdict, ev.Level)
 				if ev.Rule != "" && ev.Verdict == halfmark.VerdictSignal {
 					r.Text = plainNumbers(ev.Rule) // the badge beside it names the level
 				}
@@ -462,13 +462,4 @@ func (s *server) correctedPoints(ctx context.Context, ser halfmark.Series) ([]co
 		}
 	}
 	return out, nil
-}
-
-// familySize is the number of series of a machine (1 when unknown).
-func (s *server) familySize(ctx context.Context, machineID int64) int {
-	ss, err := s.d.Series.MachineSeries(ctx, machineID)
-	if err != nil || len(ss) == 0 {
-		return 1
-	}
-	return len(ss)
 }

@@ -33,19 +33,42 @@ func (f *fakeEvals) SeriesEvaluation(_ context.Context, id int64) (halfmark.Seri
 
 func (h *harness) jawSeries(bid int64) map[string]int64 {
 	h.t.Helper()
-	rows, err := h.db.Pool.Query(h.ctx, `SELECT edge, id FROM series WHERE beam_id = $1 AND quantity = 'position'`, bid)
+	out := map[string]int64{}
+	for _, e := range []string{"X1", "X2", "Y1", "Y2"} {
+		out[e] = h.seriesID(bid, e, halfmark.QPosition)
+	}
+	return out
+}
+
+// nChecks counts stored checks, superseded ones included.
+func (h *harness) nChecks() int { return len(h.checks("")) }
+
+// superseding counts the checks that correct check id.
+func (h *harness) superseding(id string) int {
+	n := 0
+	for _, c := range h.checks("") {
+		if c.Supersedes == id {
+			n++
+		}
+	}
+	return n
+}
+
+// correctionAudited reports whether the audit log holds a "correct" row
+// for a check superseding id whose note carries the reason.
+func (h *harness) correctionAudited(id, reason string) bool {
+	h.t.Helper()
+	es, err := h.db.Audit(h.ctx, "check", "", 1000)
 	if err != nil {
 		h.t.Fatal(err)
 	}
-	defer rows.Close()
-	out := map[string]int64{}
-	for rows.Next() {
-		var e string
-		var id int64
-		_ = rows.Scan(&e, &id)
-		out[e] = id
+	for _, e := range es {
+		note, _ := e.Detail["note"].(string)
+		if e.Action == "correct" && e.Detail["supersedes"] == id && strings.Contains(note, reason) {
+			return true
+		}
 	}
-	return out
+	return false
 }
 
 // The morning verdict is the engine's stored evaluation of each touched
@@ -90,7 +113,7 @@ func TestPlausibilityPrompt(t *testing.T) {
 	h := newHarness(t, harnessOpts{})
 	mid, bids := h.machine("Linac A", 6)
 	th := h.signIn("therapist@example.org")
-	before := h.count(`SELECT count(*) FROM checks`)
+	before := h.nChecks()
 	f := entryForm(mid, bids[0], "5.0", "5", "5.0", "5")
 	code, body, _ := th.postWithToken("/entry", "/entry", f)
 	must(t, code == http.StatusOK && strings.Contains(body, `id="plausibility"`), "cm entry: %d", code)
@@ -98,16 +121,16 @@ func TestPlausibilityPrompt(t *testing.T) {
 		"4 values look typed in cm", "Save as typed"} {
 		must(t, strings.Contains(body, s), "prompt lacks %q", s)
 	}
-	must(t, h.count(`SELECT count(*) FROM checks`) == before, "saved before confirmation")
+	must(t, h.nChecks() == before, "saved before confirmation")
 	// 60.5 mm is 10.5 mm out: asked, but not as cm; 59.9 is within 10 mm.
 	code, body, _ = th.postWithToken("/entry", "/entry", entryForm(mid, bids[0], "60.5", "59.9", "50", "50"))
 	must(t, code == http.StatusOK && strings.Contains(body, "X1 = 60.5 mm is 10.5 mm from") && !strings.Contains(body, "X2 =") &&
 		!strings.Contains(body, "typed in cm"), "60.5 mm prompt")
-	must(t, h.count(`SELECT count(*) FROM checks`) == before, "saved before confirmation")
+	must(t, h.nChecks() == before, "saved before confirmation")
 	f.Set("confirm", "1")
 	code, body, _ = th.postWithToken("/entry", "/entry", f)
 	must(t, code == http.StatusOK && strings.Contains(body, "Saved"), "confirmed: %d", code)
-	must(t, h.count(`SELECT count(*) FROM checks`) == before+1, "not saved after confirmation")
+	must(t, h.nChecks() == before+1, "not saved after confirmation")
 	code, body, _ = th.postWithToken("/entry", "/entry", entryForm(mid, bids[0], "50.1", "49.9", "50", "50"))
 	must(t, code == http.StatusOK && !strings.Contains(body, `id="plausibility"`) && strings.Contains(body, "Saved"), "plain values asked")
 }
@@ -132,19 +155,18 @@ func TestCorrectionFromDashboard(t *testing.T) {
 		strings.Contains(body, `id="x1" name="x1" inputmode="decimal" enterkeyhint="next" value="5"`), "correction form: %d", code)
 	fix := entryForm(mid, bids[0], "50.0", "50.1", "49.9", "50.0")
 	fix.Set("supersedes", wrong)
-	before := h.count(`SELECT count(*) FROM checks`)
+	before := h.nChecks()
 	code, body, _ = th.postWithToken("/entry?correct="+wrong, "/entry", fix)
 	must(t, code == http.StatusUnprocessableEntity && strings.Contains(body, `id="err-reason"`), "correction without a reason: %d", code)
-	must(t, h.count(`SELECT count(*) FROM checks`) == before, "a correction without a reason was saved")
+	must(t, h.nChecks() == before, "a correction without a reason was saved")
 	fix.Set("reason", "typed in cm")
 	code, body, _ = th.postWithToken("/entry?correct="+wrong, "/entry", fix)
 	must(t, code == http.StatusOK && strings.Contains(body, "corrects check "+wrong), "correction: %d %s", code, body)
-	must(t, h.count(`SELECT count(*) FROM checks WHERE supersedes = $1`, wrong) == 1, "the correction does not supersede the wrong check")
-	must(t, h.count(`SELECT count(*) FROM checks`) == before+1, "both checks are not in the record")
-	must(t, h.count(`SELECT count(*) FROM series_points p JOIN series s ON s.id = p.series_id WHERE s.edge = 'X1' AND s.quantity = 'position' AND p.value < 10`) == 0,
-		"the series still holds the superseded 5 mm")
-	must(t, h.count(`SELECT count(*) FROM audit_log WHERE action = 'correct' AND detail->>'supersedes' = $1 AND detail->>'note' LIKE '%typed in cm%'`, wrong) == 1,
-		"no audit row with the reason")
+	must(t, h.superseding(wrong) == 1, "the correction does not supersede the wrong check")
+	must(t, h.nChecks() == before+1, "both checks are not in the record")
+	pts, err := h.db.Points(h.ctx, h.seriesID(bids[0], "X1", halfmark.QPosition))
+	must(t, err == nil && len(pts) == 1 && pts[0].Value > 49, "the X1 series holds %+v; want only the corrected 50 mm (%v)", pts, err)
+	must(t, h.correctionAudited(wrong, "typed in cm"), "no audit row with the reason")
 	code, _, _ = th.get("/entry?correct=" + wrong)
 	must(t, code == http.StatusConflict, "correcting an already corrected check: %d", code)
 }

@@ -24,7 +24,7 @@ type findingRow struct {
 func rowOf(f halfmark.Finding) findingRow {
 	return findingRow{F: f, Component: kindName(f.Kind) + " " + f.Name,
 		Magnitude: fmt.Sprintf("%s mm (95%% interval %s to %s mm)", signed(f.MagnitudeMM), signed(f.MagnitudeCIMM[0]), signed(f.MagnitudeCIMM[1])),
-		Crossing:  crossingText(f.Crossing), Message: plainNumbers(f.Message), Handling: handlingText(f)}
+		Crossing:  reportCrossingText(f.Crossing), Message: plainNumbers(f.Message), Handling: handlingText(f)}
 }
 
 type findingsData struct {

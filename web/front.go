@@ -3,7 +3,6 @@ package web
 import (
 	"context"
 	"html/template"
-	"math"
 	"net/http"
 	"slices"
 	"strconv"
@@ -36,12 +35,12 @@ type frontRow struct {
 	Worst               *halfmark.WorstSeries
 	Deviation, Crossing string
 	LastCheck           string
-	OpenAlerts          int
+	Findings            []halfmark.Finding // active, most urgent first
 }
 
-func formatRow(m halfmark.MachineStatus) frontRow {
+func formatRow(m halfmark.MachineStatus, fs []halfmark.Finding) frontRow {
 	r := frontRow{ID: m.ID, Name: m.Name, CSS: levelKey(m.Level, m.Overdue), Badge: glyph(m.Level, m.Overdue), Worst: m.Worst,
-		Deviation: "—", Crossing: "—", LastCheck: "—", OpenAlerts: m.OpenAlerts}
+		Deviation: "—", Crossing: "—", LastCheck: "—", Findings: fs}
 	if w := m.Worst; w != nil {
 		if w.DeviationMM != nil {
 			r.Deviation = signed(*w.DeviationMM)
@@ -77,19 +76,34 @@ type statusView struct {
 	body template.HTML
 }
 
-func (s *server) loadStatus(ctx context.Context) ([]halfmark.MachineStatus, error) {
-	var rows []halfmark.MachineStatus
-	var err error
-	if s.d.Status != nil {
-		rows, err = s.d.Status.Status(ctx)
-	} else {
-		rows, err = s.computedStatus(ctx)
+// frontState is what the front page shows: every machine's status and its
+// active findings, both as the drift engine decided them.
+type frontState struct {
+	rows     []halfmark.MachineStatus
+	findings map[int64][]halfmark.Finding
+}
+
+func (s *server) loadStatus(ctx context.Context) (frontState, error) {
+	var st frontState
+	if s.d.Status == nil {
+		return st, halfmark.Errorf(halfmark.EUnavailable, "the front page needs the drift engine's status, which this server was started without")
 	}
+	rows, err := s.d.Status.Status(ctx)
 	if err != nil {
-		return nil, err
+		return st, err
 	}
 	sortStatus(rows)
-	return rows, nil
+	st.rows, st.findings = rows, map[int64][]halfmark.Finding{}
+	if s.d.Findings != nil {
+		fs, err := s.d.Findings.Findings(ctx, halfmark.FindingFilter{State: "active"})
+		if err != nil {
+			return st, err
+		}
+		for _, f := range fs {
+			st.findings[f.MachineID] = append(st.findings[f.MachineID], f)
+		}
+	}
+	return st, nil
 }
 
 // statusCacheTTL is how long one answer of the status service serves the
@@ -104,19 +118,19 @@ type statusCache struct {
 	v  *statusView
 }
 
-func (c *statusCache) get(ctx context.Context, now time.Time, load func(context.Context) ([]halfmark.MachineStatus, error)) (*statusView, error) {
+func (c *statusCache) get(ctx context.Context, now time.Time, load func(context.Context) (frontState, error)) (*statusView, error) {
 	c.mu.Lock()
 	defer c.mu.Unlock()
 	if c.v != nil && now.Sub(c.v.at) < statusCacheTTL && !now.Before(c.v.at) {
 		return c.v, nil
 	}
-	rows, err := load(ctx)
+	st, err := load(ctx)
 	if err != nil {
 		return nil, err
 	}
-	v := &statusView{at: now, rows: make([]frontRow, len(rows))}
-	for i, r := range rows {
-		v.rows[i] = formatRow(r)
+	v := &statusView{at: now, rows: make([]frontRow, len(st.rows))}
+	for i, r := range st.rows {
+		v.rows[i] = formatRow(r, st.findings[r.ID])
 	}
 	v.body = tableRows(v.rows)
 	c.v = v
@@ -147,83 +161,11 @@ func sortStatus(rows []halfmark.MachineStatus) {
 		if ra, rb := statusRank(a), statusRank(b); ra != rb {
 			return rb - ra
 		}
-		if a.OpenAlerts != b.OpenAlerts {
-			return b.OpenAlerts - a.OpenAlerts
+		if a.Findings != b.Findings {
+			return b.Findings - a.Findings
 		}
 		return strings.Compare(a.Name, b.Name)
 	})
-}
-
-// overdueAfter is the fallback overdue rule used when no StatusService is
-// wired: no check of any kind for this long (common practice: a daily check
-// each treatment day).
-const overdueAfter = 24 * time.Hour
-
-// computedStatus builds the front page from the series themselves when the
-// drift engine's StatusService is not wired: each machine's worst series by
-// level, then by |deviation| / tolerance.
-func (s *server) computedStatus(ctx context.Context) ([]halfmark.MachineStatus, error) {
-	ms, err := s.d.Machines.Machines(ctx)
-	if err != nil {
-		return nil, err
-	}
-	beams := map[int64]string{}
-	now := s.d.Now()
-	out := make([]halfmark.MachineStatus, 0, len(ms))
-	for _, m := range ms {
-		bs, err := s.d.Machines.Beams(ctx, m.ID)
-		if err != nil {
-			return nil, err
-		}
-		for _, b := range bs {
-			beams[b.ID] = b.Label
-		}
-		views, err := s.machineViews(ctx, m.ID)
-		if err != nil {
-			return nil, err
-		}
-		st := halfmark.MachineStatus{ID: m.ID, Name: m.Name}
-		var worst *seriesView
-		worstScore := -1.0
-		for i := range views {
-			v := &views[i]
-			if v.S.LastAt != nil && (st.LastCheckAt == nil || v.S.LastAt.After(*st.LastCheckAt)) {
-				t := *v.S.LastAt
-				st.LastCheckAt = &t
-			}
-			if v.Deviation == nil {
-				continue
-			}
-			score := float64(v.Level) * 1000
-			if v.HasLimits && v.Limits.ToleranceMM > 0 {
-				score += math.Abs(*v.Deviation) / v.Limits.ToleranceMM
-			}
-			if score > worstScore {
-				worst, worstScore = v, score
-			}
-		}
-		if worst != nil {
-			st.Level = worst.Level
-			w := &halfmark.WorstSeries{SeriesID: worst.S.ID, BeamID: worst.S.BeamID, BeamLabel: beams[worst.S.BeamID],
-				Edge: worst.S.Edge, Quantity: worst.S.Quantity, Geometry: worst.S.Geometry, Rule: worst.Rule,
-				DeviationMM: worst.Deviation, ProjectedCrossing: worst.Crossing}
-			if worst.HasLimits {
-				t, a := worst.Limits.ToleranceMM, worst.Limits.ActionMM
-				w.ToleranceMM, w.ActionMM = &t, &a
-			}
-			st.Worst = w
-		}
-		st.Overdue = st.LastCheckAt == nil || now.Sub(*st.LastCheckAt) > overdueAfter
-		if s.d.Alerts != nil {
-			as, err := s.d.Alerts.Alerts(ctx, halfmark.AlertFilter{MachineID: m.ID})
-			if err != nil {
-				return nil, err
-			}
-			st.OpenAlerts = len(as)
-		}
-		out = append(out, st)
-	}
-	return out, nil
 }
 
 // tableRows writes the front page's rows directly: the page is requested
@@ -251,24 +193,27 @@ func tableRows(rows []frontRow) template.HTML {
 		w(`"><strong>`)
 		esc(r.Name)
 		w(`</strong></a></td><td>`)
-		if s := r.Worst; s != nil {
-			w(`<a href="/series/`)
-			b.Write(strconv.AppendInt(num[:0], s.SeriesID, 10))
+		if len(r.Findings) == 0 {
+			w(`<span class="muted">no active finding</span>`)
+		}
+		for i, f := range r.Findings {
+			if i > 0 {
+				w(`<br>`)
+			}
+			w(string(glyph(f.Level, false)))
+			w(` <a href="/findings/`)
+			b.Write(strconv.AppendInt(num[:0], f.ID, 10))
 			w(`">`)
-			esc(s.BeamLabel)
-			w(` · `)
-			esc(s.Edge)
-			w(` · `)
-			esc(string(s.Quantity))
-			w(`</a><br><small class="muted">`)
-			esc(s.Geometry)
-			if s.Rule != "" {
-				w(` · `)
-				esc(s.Rule)
+			esc(componentLabel(f.Component))
+			w(`</a> <span class="num">`)
+			esc(signed(f.MagnitudeMM))
+			w(` mm</span> <small class="muted">`)
+			esc(crossingText(f.Crossing))
+			if f.State == halfmark.FindingAcknowledged {
+				w(` · acknowledged by `)
+				esc(f.AckBy)
 			}
 			w(`</small>`)
-		} else {
-			w(`<span class="muted">—</span>`)
 		}
 		w(`</td><td class="num">`)
 		esc(r.Deviation)
@@ -276,9 +221,41 @@ func tableRows(rows []frontRow) template.HTML {
 		esc(r.Crossing)
 		w(`</td><td>`)
 		esc(r.LastCheck)
-		w(`</td><td class="num">`)
-		b.Write(strconv.AppendInt(num[:0], int64(r.OpenAlerts), 10))
 		w("</td></tr>\n")
 	}
 	return template.HTML(b.String())
+}
+
+// componentLabel names a component as a physicist does: "jaw Y2", "MLC
+// bank 2", "leaf B2P29", "penumbra of 6 MV FFF", "light field X1".
+func componentLabel(c halfmark.Component) string {
+	switch c.Kind {
+	case halfmark.ComponentJaw:
+		return "jaw " + c.Name
+	case halfmark.ComponentMLCBank:
+		return "MLC " + c.Name
+	case halfmark.ComponentMLCLeaf:
+		return "leaf " + c.Name
+	case halfmark.ComponentPenumbra:
+		return "penumbra of " + c.Name
+	case halfmark.ComponentLightField:
+		return "light field " + c.Name
+	}
+	return c.String()
+}
+
+// crossingText says when a finding's trend reaches its tolerance, with a
+// date only when the engine projected one.
+func crossingText(c halfmark.FindingCrossing) string {
+	switch c.Status {
+	case halfmark.CrossingAlreadyBeyond:
+		return "beyond tolerance now"
+	case halfmark.CrossingProjected:
+		if c.ToleranceDate != nil {
+			return "tolerance reached about " + c.ToleranceDate.Local().Format("2006-01-02")
+		}
+	case halfmark.CrossingBeyondHorizon:
+		return "trend reaches tolerance beyond the horizon"
+	}
+	return "no significant trend"
 }

@@ -96,8 +96,8 @@ func glyph(l halfmark.Level, overdue bool) template.HTML {
 	return out
 }
 
-// verdictText is the engine's verdict word for people.
-func verdictText(v string, l halfmark.Level) string {
+// engineVerdictText is the engine's verdict word for people.
+func engineVerdictText(v string, l halfmark.Level) string {
 	switch v {
 	case halfmark.VerdictInControl:
 		return "in control"

@@ -17,6 +17,7 @@ import (
 	"time"
 
 	"halfmark"
+	"halfmark/analysis/tolerance"
 	"halfmark/api"
 	"halfmark/db"
 	"halfmark/db/dbtest"
@@ -136,8 +137,7 @@ type harness struct {
 }
 
 type harnessOpts struct {
-	noStatus bool // use the dashboard's own computed status
-	shipped  bool
+	shipped bool
 	// engine wires the real drift engine: db.DB's StatusService,
 	// AlertService and service events, and the worker's shipped tolerances.
 	engine bool
@@ -149,33 +149,24 @@ type harnessOpts struct {
 
 func newHarness(t testing.TB, o harnessOpts) *harness {
 	t.Helper()
-	url := dbtest.New(t)
+	d := dbtest.Open(t)
 	ctx := context.Background()
-	if err := db.Migrate(ctx, url, nil); err != nil {
-		t.Fatal(err)
-	}
-	d, err := db.Open(ctx, url)
-	if err != nil {
-		t.Fatal(err)
-	}
-	t.Cleanup(d.Close)
 	h := &harness{t: t, db: d, status: &fakeStatus{}, alerts: &fakeAlerts{}, book: &book{shipped: o.shipped}, ctx: ctx}
 	log := slog.New(slog.NewTextHandler(io.Discard, nil))
-	e := api.New(api.Services{Machines: d, Checks: d, Series: d, Auth: d, Audit: d, Pinger: d, Log: log})
+	e := api.New(api.Services{Machines: d, Checks: d, Series: d, Auth: d, Audit: d, Pinger: d, Raw: d, Log: log})
 	deps := web.Deps{Machines: d, Checks: d, Series: d, Users: d, Sessions: d, SignOffs: d, Raw: d,
-		Alerts: h.alerts, Audit: d, Tolerances: h.book, Log: log, Reports: d, Findings: o.findings, Evaluations: o.evals}
-	if !o.noStatus {
-		deps.Status = h.status
+		Alerts: h.alerts, Audit: d, Tolerances: h.book, Log: log, Penumbra: d, Findings: d, Evaluations: d, Verdicts: d, Reports: d}
+	// Stand-ins for the engine's stored findings and evaluations, where a
+	// test needs answers the engine would not give on its data.
+	if o.findings != nil {
+		deps.Findings = o.findings
 	}
+	if o.evals != nil {
+		deps.Evaluations = o.evals
+	}
+	deps.Status = h.status
 	if o.engine {
-		deps.Status, deps.Alerts, deps.Events, deps.Tolerances = d, d, d, worker.ShippedTolerances()
-		// The engine's stored evaluations and findings, once the store serves them.
-		if e, ok := any(d).(halfmark.EvaluationService); ok && o.evals == nil {
-			deps.Evaluations = e
-		}
-		if f, ok := any(d).(halfmark.FindingService); ok && o.findings == nil {
-			deps.Findings = f
-		}
+		deps.Status, deps.Alerts, deps.Events, deps.Tolerances = d, d, d, tolerance.Shipped()
 	}
 	if err := web.Register(e, deps); err != nil {
 		t.Fatal(err)
@@ -241,15 +232,6 @@ func (h *harness) evaluate() {
 	if _, err := w.Evaluate(h.ctx, true); err != nil {
 		h.t.Fatal(err)
 	}
-}
-
-func (h *harness) count(sql string, args ...any) int {
-	h.t.Helper()
-	var n int
-	if err := h.db.Pool.QueryRow(h.ctx, sql, args...).Scan(&n); err != nil {
-		h.t.Fatal(err)
-	}
-	return n
 }
 
 // client is a browser-like HTTP client with a cookie jar that does not
@@ -326,3 +308,79 @@ func must(t testing.TB, cond bool, format string, args ...any) {
 }
 
 var _ = fmt.Sprint
+
+// The store as the tests read it: through db's service methods, never SQL.
+
+// checks lists every stored check of every machine, of one kind or all.
+func (h *harness) checks(kind halfmark.CheckKind) []halfmark.Check {
+	h.t.Helper()
+	cs, err := h.db.Checks(h.ctx, halfmark.CheckFilter{Kind: kind, Limit: 5000})
+	if err != nil {
+		h.t.Fatal(err)
+	}
+	return cs
+}
+
+// series lists every series of every machine.
+func (h *harness) series() []halfmark.Series {
+	h.t.Helper()
+	ms, err := h.db.Machines(h.ctx)
+	if err != nil {
+		h.t.Fatal(err)
+	}
+	var out []halfmark.Series
+	for _, m := range ms {
+		ss, err := h.db.MachineSeries(h.ctx, m.ID)
+		if err != nil {
+			h.t.Fatal(err)
+		}
+		out = append(out, ss...)
+	}
+	return out
+}
+
+// seriesID finds a series by edge and quantity (beam 0: any beam).
+func (h *harness) seriesID(beamID int64, edge string, q halfmark.Quantity) int64 {
+	h.t.Helper()
+	for _, s := range h.series() {
+		if s.Edge == edge && s.Quantity == q && (beamID == 0 || s.BeamID == beamID) {
+			return s.ID
+		}
+	}
+	h.t.Fatalf("no %s %s series on beam %d", edge, q, beamID)
+	return 0
+}
+
+// baselines lists every baseline version of every series.
+func (h *harness) baselines() []halfmark.Baseline {
+	h.t.Helper()
+	var out []halfmark.Baseline
+	for _, s := range h.series() {
+		bs, err := h.db.Baselines(h.ctx, s.ID)
+		if err != nil {
+			h.t.Fatal(err)
+		}
+		out = append(out, bs...)
+	}
+	return out
+}
+
+// raw lists the raw records of every stored check, with their content.
+func (h *harness) raw() []halfmark.RawData {
+	h.t.Helper()
+	var out []halfmark.RawData
+	for _, c := range h.checks("") {
+		rs, err := h.db.RawForCheck(h.ctx, c.ID)
+		if err != nil {
+			h.t.Fatal(err)
+		}
+		for _, r := range rs {
+			full, err := h.db.Raw(h.ctx, r.ID)
+			if err != nil {
+				h.t.Fatal(err)
+			}
+			out = append(out, full)
+		}
+	}
+	return out
+}

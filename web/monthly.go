@@ -10,7 +10,9 @@ import (
 	"image/color"
 	"io"
 	"net/http"
+	"net/url"
 	"path/filepath"
+	"sort"
 	"strconv"
 	"strings"
 	"time"
@@ -23,19 +25,12 @@ import (
 	"gonum.org/v1/plot/vg/draw"
 
 	"halfmark"
-	"halfmark/analysis/epid"
 	"halfmark/analysis/profile"
+	"halfmark/analysis/rawdata"
 )
 
 // maxUploadBytes bounds an uploaded profile or image (64 MiB).
 const maxUploadBytes = 64 << 20
-
-// Analysis versions recorded with raw data, so that a later analysis can
-// tell which results to recompute.
-const (
-	profileAnalysisVersion = "halfmark-profile/1"
-	epidAnalysisVersion    = "halfmark-epid-field/1"
-)
 
 var uploadKinds = []halfmark.CheckKind{halfmark.KindMonthly, halfmark.KindAnnual, halfmark.KindCommissioning, halfmark.KindPostService}
 
@@ -52,15 +47,61 @@ type monthlyData struct {
 	Kinds    []halfmark.CheckKind
 	SignOffs []halfmark.AuditEntry
 	Signed   bool
+	// Verdicts are the stored evaluations of the saved check's series;
+	// VerdictsShown is false when the store offers none.
+	Verdicts      []edgeVerdictRow
+	VerdictsShown bool
+}
+
+// edgeVerdictRow is one edge of a saved check with the level its series was
+// last evaluated at, or "evaluation pending".
+type edgeVerdictRow struct {
+	halfmark.EdgeVerdict
+	Text string
 }
 
 // monthRow says, for one beam, which checks of the month were done and
 // which are missing.
 type monthRow struct {
 	Beam           halfmark.Beam
-	Monthly        []halfmark.Check
+	Monthly        []monthCheck
+	Done           bool     // every axis of the required set is in
+	MissingAxes    []string // axes of the required set not yet measured
 	MorningDays    int
 	MissingMorning []string // weekdays up to today without a morning check
+}
+
+// monthCheck is a non-morning check with what it was computed from.
+type monthCheck struct {
+	halfmark.Check
+	Provenance string
+}
+
+// requiredAxes is a beam's monthly set: the X jaws (X1, X2) and the Y jaws
+// (Y1, Y2), whether from two profiles or one image.
+var requiredAxes = []string{"X", "Y"}
+
+// provenance says what a check's edges came from: the raw file kept with
+// it, a file or image analysed but not kept, or values typed in.
+func provenance(c halfmark.Check, raw []halfmark.RawData) string {
+	if len(raw) > 0 {
+		switch raw[0].Kind {
+		case halfmark.RawProfile:
+			return "profile " + raw[0].Filename
+		case halfmark.RawImage, halfmark.RawPicket:
+			return "image " + raw[0].Filename
+		}
+		return string(raw[0].Kind) + " " + raw[0].Filename
+	}
+	if c.AnalysisVersion == "" {
+		return "typed"
+	}
+	for _, e := range c.Edges {
+		if strings.HasPrefix(e.Edge, "B") || strings.Contains(strings.ToUpper(c.Device), "EPID") {
+			return "image, not kept"
+		}
+	}
+	return "file, not kept"
 }
 
 type uploadForm struct {
@@ -76,6 +117,7 @@ type preview struct {
 	Plot     template.HTML
 	Method   string
 	Warnings []string
+	Blocks   []resultBlock
 }
 
 func monthBounds(month string) (time.Time, time.Time, bool) {
@@ -120,14 +162,39 @@ func (s *server) monthlyData(ctx context.Context, c echo.Context, machine, month
 			return d, err
 		}
 		days := map[string]bool{}
+		axes := map[string]bool{}
 		for _, ch := range cs {
 			switch ch.Kind {
 			case halfmark.KindMorning:
 				days[ch.MeasuredAt.Local().Format("2006-01-02")] = true
 			default:
-				r.Monthly = append(r.Monthly, ch)
+				// The list carries no edges; the month's few non-morning
+				// checks are read one by one.
+				full, err := s.d.Checks.Check(ctx, ch.ID)
+				if err != nil {
+					return d, err
+				}
+				ch = full.Check
+				raw, err := s.d.Raw.RawForCheck(ctx, ch.ID)
+				if err != nil {
+					return d, err
+				}
+				r.Monthly = append(r.Monthly, monthCheck{Check: ch, Provenance: provenance(ch, raw)})
+				if ch.Kind == halfmark.KindMonthly {
+					for _, e := range ch.Edges {
+						if n := e.Edge; len(n) == 2 && (n[1] == '1' || n[1] == '2') {
+							axes[n[:1]] = true
+						}
+					}
+				}
 			}
 		}
+		for _, a := range requiredAxes {
+			if !axes[a] {
+				r.MissingAxes = append(r.MissingAxes, a)
+			}
+		}
+		r.Done = len(r.MissingAxes) == 0
 		r.MorningDays = len(days)
 		for day := from; day.Before(to) && !day.After(now); day = day.AddDate(0, 0, 1) {
 			if wd := day.Weekday(); wd == time.Saturday || wd == time.Sunday {
@@ -151,6 +218,29 @@ func (s *server) monthly(c echo.Context) error {
 	}
 	d.Saved = c.QueryParam("saved")
 	d.Signed = c.QueryParam("signed") == "1"
+	if d.Saved != "" && s.d.Verdicts != nil {
+		if d.Verdicts, err = s.verdicts(c.Request().Context(), d.Saved); err != nil {
+			return s.failErr(c, err)
+		}
+		d.VerdictsShown = true
+	}
+	// The setup of the last saved profile stays for the next one.
+	if d.Saved != "" {
+		q := c.QueryParams()
+		d.Form.Beam, d.Form.Kind, d.Form.Type, d.Form.Axis = q.Get("beam"), q.Get("kind"), q.Get("type"), q.Get("axis")
+		d.Form.SSD, d.Form.Depth, d.Form.FieldX, d.Form.FieldY, d.Form.Device = q.Get("ssd"), q.Get("depth"), q.Get("field_x"), q.Get("field_y"), q.Get("device")
+		if d.Form.Type == "" {
+			d.Form.Type = "profile"
+		}
+		if d.Form.Kind == "" {
+			d.Form.Kind = string(halfmark.KindMonthly)
+		}
+		for _, r := range d.Rows {
+			if strconv.FormatInt(r.Beam.ID, 10) == d.Form.Beam && len(r.MissingAxes) > 0 {
+				d.Form.Axis = r.MissingAxes[0] // offer the axis still missing
+			}
+		}
+	}
 	if d.Machine != nil {
 		if d.SignOffs, err = s.d.Audit.Audit(c.Request().Context(), "report", halfmark.ReportEntityID(d.Machine.ID, d.Month), 20); err != nil {
 			return s.failErr(c, err)
@@ -208,7 +298,7 @@ func (s *server) monthlyAnalyze(c echo.Context) error {
 	}
 	f.Content = base64.StdEncoding.EncodeToString(content)
 	d.Form = f
-	d.Preview = &preview{Edges: a.edges, Method: a.method, Warnings: a.warnings, Pairs: a.pairs}
+	d.Preview = &preview{Edges: a.edges, Method: a.method, Warnings: a.warnings, Blocks: a.blocks, Pairs: a.pairs}
 	if a.plot != nil {
 		if d.Preview.Plot, err = inlineSVG(a.plot, vg.Points(720), vg.Points(300), "profile with 50, 80 and 20 % points"); err != nil {
 			return s.failErr(c, err)
@@ -247,7 +337,7 @@ func (s *server) monthlySave(c echo.Context) error {
 	mid, _ := strconv.ParseInt(f.Machine, 10, 64)
 	bid, _ := strconv.ParseInt(f.Beam, 10, 64)
 	chk := halfmark.Check{ID: f.ID, MachineID: mid, BeamID: bid, Kind: halfmark.CheckKind(f.Kind), Device: f.Device,
-		Edges: a.edges, MeasuredAt: s.d.Now(), AnalysisVersion: a.version, Setup: a.setup}
+		Edges: a.edges, MeasuredAt: s.d.Now(), AnalysisVersion: rawdata.Version, Setup: a.setup}
 	if u := user(c); u != nil {
 		chk.Operator = u.Email
 	}
@@ -259,12 +349,11 @@ func (s *server) monthlySave(c echo.Context) error {
 		chk.MeasuredAt = t
 	}
 	ctx := c.Request().Context()
-	opts, _ := json.Marshal(a.options)
-	raw := halfmark.RawData{Kind: a.kind, Filename: f.Filename, Content: content, Options: opts, Analysis: a.result, AnalysisVersion: a.version}
+	raw := halfmark.RawData{Kind: a.kind, Filename: f.Filename, Content: content, Options: a.options, Analysis: a.analysis, AnalysisVersion: rawdata.Version}
 	if raw.Filename == "" {
 		raw.Filename = "upload"
 	}
-	st, err := s.saveWithRaw(ctx, user(c).Actor(), &chk, &raw)
+	st, _, err := s.d.Checks.RecordCheckWithRaw(ctx, user(c).Actor(), &chk, &raw)
 	s.status.invalidate()
 	if err != nil {
 		if halfmark.ErrorCodeOf(err) == halfmark.EInvalid {
@@ -272,23 +361,62 @@ func (s *server) monthlySave(c echo.Context) error {
 		}
 		return s.failErr(c, err)
 	}
-	month := st.MeasuredAt.Local().Format("2006-01")
-	return c.Redirect(http.StatusSeeOther, "/monthly?machine="+f.Machine+"&month="+month+"&saved="+st.ID)
+	q := url.Values{"machine": {f.Machine}, "month": {st.MeasuredAt.Local().Format("2006-01")}, "saved": {st.ID},
+		"beam": {f.Beam}, "kind": {f.Kind}, "type": {f.Type}, "axis": {f.Axis},
+		"ssd": {f.SSD}, "depth": {f.Depth}, "field_x": {f.FieldX}, "field_y": {f.FieldY}, "device": {f.Device}}
+	return c.Redirect(http.StatusSeeOther, "/monthly?"+q.Encode())
 }
 
-// uploadResult is an analysed upload turned into edge results.
+// verdicts reads the stored evaluation of each series the check feeds; the
+// dashboard never computes a level itself.
+func (s *server) verdicts(ctx context.Context, checkID string) ([]edgeVerdictRow, error) {
+	vs, err := s.d.Verdicts.CheckVerdicts(ctx, checkID)
+	if err != nil {
+		return nil, err
+	}
+	out := make([]edgeVerdictRow, len(vs))
+	for i, v := range vs {
+		out[i] = edgeVerdictRow{EdgeVerdict: v, Text: verdictText(v)}
+	}
+	return out, nil
+}
+
+func verdictText(v halfmark.EdgeVerdict) string {
+	switch {
+	case !v.Evaluated:
+		return "evaluation pending"
+	case v.Level == halfmark.LevelInControl:
+		return "Level 0 — no signal"
+	case v.Rule != "":
+		return v.Level.String() + " (" + v.Rule + ")"
+	}
+	return v.Level.String()
+}
+
+// uploadResult is an analysed upload: what analysis/rawdata computed, plus
+// what the page shows beside it.
 type uploadResult struct {
 	edges    []halfmark.EdgeResult
 	pairs    []pairRow
 	setup    halfmark.Setup
 	kind     halfmark.RawKind
-	options  any
-	result   json.RawMessage
-	version  string
+	options  json.RawMessage // the rawdata options, stored with the raw file
+	analysis json.RawMessage // rawdata's result, stored with the raw file
 	method   string
 	warnings []string
+	blocks   []resultBlock
 	plot     *plot.Plot
 }
+
+// resultBlock is one object the analysis result carries beside its
+// numbers (for example the geometry an image was measured with), shown as
+// it is.
+type resultBlock struct {
+	Name string
+	Rows []resultRow
+}
+
+type resultRow struct{ Key, Value string }
 
 func optNumber(raw, what string, lo, hi float64) (*float64, error) {
 	if raw == "" {
@@ -301,10 +429,25 @@ func optNumber(raw, what string, lo, hi float64) (*float64, error) {
 	return &v, nil
 }
 
-// analyzeUpload runs the profile or EPID analysis on an uploaded file.
-// A profile along X gives X1 = −(left 50 % position) and X2 = right 50 %
-// position (positive on their own side, the halfmark edge convention);
-// along Y, Y1 and Y2.
+// uploadOptions is the rawdata options document for the form: the same
+// shape the API takes and recompute reads back.
+func uploadOptions(f uploadForm) (halfmark.RawKind, json.RawMessage, error) {
+	var v any
+	var kind halfmark.RawKind
+	switch f.Type {
+	case "profile":
+		kind, v = halfmark.RawProfile, rawdata.ProfileParams{Axis: f.Axis}
+	case "image":
+		kind, v = halfmark.RawImage, rawdata.ImageParams{}
+	default:
+		return "", nil, fmt.Errorf("choose the file type: a profile (CSV) or an EPID image (DICOM)")
+	}
+	b, err := json.Marshal(v)
+	return kind, b, err
+}
+
+// analyzeUpload runs analysis/rawdata on an uploaded file, as the API and
+// recompute do, and reads what the page shows from its result.
 func analyzeUpload(f uploadForm, content []byte) (uploadResult, error) {
 	var out uploadResult
 	var err error
@@ -314,8 +457,7 @@ func analyzeUpload(f uploadForm, content []byte) (uploadResult, error) {
 	if out.setup.FieldYcm, err = optNumber(f.FieldY, "Nominal field Y (cm)", 0.1, halfmark.MaxFieldCM); err != nil {
 		return out, err
 	}
-	switch f.Type {
-	case "profile":
+	if f.Type == "profile" {
 		if out.setup.SSDcm, err = optNumber(f.SSD, "SSD (cm)", halfmark.MinSSDcm, halfmark.MaxSSDcm); err != nil {
 			return out, err
 		}
@@ -325,56 +467,95 @@ func analyzeUpload(f uploadForm, content []byte) (uploadResult, error) {
 		if out.setup.DepthCm != nil && out.setup.SSDcm == nil {
 			return out, fmt.Errorf("give the SSD with the depth, so positions can be projected to the isocentre plane")
 		}
-		samples, err := profile.ParseCSV(bytes.NewReader(content))
-		if err != nil {
-			return out, fmt.Errorf("the profile file could not be read: %v; it needs two columns, position in mm and signal", err)
+	}
+	if out.kind, out.options, err = uploadOptions(f); err != nil {
+		return out, err
+	}
+	if out.analysis, out.edges, err = rawdata.Analyze(out.kind, content, out.options); err != nil {
+		if out.kind == halfmark.RawImage {
+			return out, fmt.Errorf("the EPID image could not be read or analysed: %v", err)
 		}
-		opt := profile.Options{}
-		r, err := profile.Analyze(samples, opt)
-		if err != nil {
-			return out, fmt.Errorf("the profile could not be analysed: %v", err)
+		return out, fmt.Errorf("the profile could not be analysed: %v; it needs two columns, position in mm and signal", err)
+	}
+	out.warnings, out.blocks = resultExtras(out.analysis)
+	switch out.kind {
+	case halfmark.RawProfile:
+		var r profile.Result
+		if err := json.Unmarshal(out.analysis, &r); err != nil {
+			return out, err
 		}
-		lo, hi := "X1", "X2"
-		if f.Axis == "Y" {
-			lo, hi = "Y1", "Y2"
+		out.pairs = []pairRow{{Axis: out.edges[0].Edge[:1], SizeMM: r.FieldSizeMM, CentreMM: r.CentreMM}}
+		out.method = r.Method
+		// The plot needs the samples; rawdata parsed the same bytes already.
+		if samples, err := profile.ParseCSV(bytes.NewReader(content)); err == nil {
+			out.plot = profilePlot(samples, r)
 		}
-		lp, rp := r.LeftPenumbraMM, r.RightPenumbraMM
-		out.edges = []halfmark.EdgeResult{{Edge: lo, PositionMM: -r.LeftEdgeMM, PenumbraMM: &lp}, {Edge: hi, PositionMM: r.RightEdgeMM, PenumbraMM: &rp}}
-		out.pairs = []pairRow{{Axis: lo[:1], SizeMM: r.FieldSizeMM, CentreMM: r.CentreMM}}
-		out.kind, out.version, out.method, out.warnings = halfmark.RawProfile, profileAnalysisVersion, r.Method, r.Warnings
-		out.options = map[string]any{"axis": lo[:1], "options": opt}
-		out.result, _ = json.Marshal(r)
-		out.plot = profilePlot(samples, r)
-	case "image":
-		img, err := epid.DecodeDICOMBytes(content, epid.DecodeOptions{})
-		if err != nil {
-			return out, fmt.Errorf("the EPID image could not be read: %v", err)
+	case halfmark.RawImage:
+		var r struct {
+			FieldXMM      float64  `json:"field_x_mm"`
+			FieldYMM      float64  `json:"field_y_mm"`
+			CentreXMM     float64  `json:"centre_x_mm"`
+			CentreYMM     float64  `json:"centre_y_mm"`
+			GantryDeg     *float64 `json:"gantry_deg"`
+			CollimatorDeg *float64 `json:"collimator_deg"`
 		}
-		opt := epid.FieldOptions{}
-		r, err := epid.AnalyzeField(img, opt)
-		if err != nil {
-			return out, fmt.Errorf("the EPID image could not be analysed: %v", err)
-		}
-		for _, e := range []struct {
-			name string
-			v    float64
-		}{{"X1", r.X1MM}, {"X2", r.X2MM}, {"Y1", r.Y1MM}, {"Y2", r.Y2MM}} {
-			er := halfmark.EdgeResult{Edge: e.name, PositionMM: e.v}
-			if p, ok := r.PenumbraMM[e.name]; ok {
-				er.PenumbraMM = &p
-			}
-			out.edges = append(out.edges, er)
+		if err := json.Unmarshal(out.analysis, &r); err != nil {
+			return out, err
 		}
 		out.setup.GantryDeg, out.setup.CollimatorDeg = r.GantryDeg, r.CollimatorDeg
 		out.pairs = []pairRow{{Axis: "X", SizeMM: r.FieldXMM, CentreMM: r.CentreXMM}, {Axis: "Y", SizeMM: r.FieldYMM, CentreMM: r.CentreYMM}}
-		out.kind, out.version, out.warnings = halfmark.RawImage, epidAnalysisVersion, r.Warnings
 		out.method = "EPID field edges at the isocentre plane (50 % of central value above background)"
-		out.options = opt
-		out.result, _ = json.Marshal(r)
-	default:
-		return out, fmt.Errorf("choose the file type: a profile (CSV) or an EPID image (DICOM)")
 	}
 	return out, nil
+}
+
+// resultExtras reads the warnings and every block named "…_used" (such as
+// geometry_used: the geometry an image was measured with) from an analysis
+// result, whatever fields they carry.
+func resultExtras(analysis json.RawMessage) ([]string, []resultBlock) {
+	var top map[string]json.RawMessage
+	if json.Unmarshal(analysis, &top) != nil {
+		return nil, nil
+	}
+	var warnings []string
+	_ = json.Unmarshal(top["warnings"], &warnings)
+	var blocks []resultBlock
+	for _, name := range sortedKeys(top) {
+		if !strings.HasSuffix(name, "_used") {
+			continue
+		}
+		var fields map[string]any
+		if json.Unmarshal(top[name], &fields) != nil {
+			blocks = append(blocks, resultBlock{Name: name, Rows: []resultRow{{Key: name, Value: string(top[name])}}})
+			continue
+		}
+		b := resultBlock{Name: name}
+		for _, k := range sortedKeys(fields) {
+			v := fields[k]
+			var text string
+			switch x := v.(type) {
+			case string:
+				text = x
+			case nil:
+				text = "—"
+			default:
+				j, _ := json.Marshal(x)
+				text = string(j)
+			}
+			b.Rows = append(b.Rows, resultRow{Key: k, Value: text})
+		}
+		blocks = append(blocks, b)
+	}
+	return warnings, blocks
+}
+
+func sortedKeys[V any](m map[string]V) []string {
+	keys := make([]string, 0, len(m))
+	for k := range m {
+		keys = append(keys, k)
+	}
+	sort.Strings(keys)
+	return keys
 }
 
 // profilePlot draws the normalised profile with its 50 % edges and 80 %
@@ -410,30 +591,4 @@ func profilePlot(samples []profile.Sample, r profile.Result) *plot.Plot {
 	p.Legend.Top = true
 	p.Y.Min = 0
 	return p
-}
-
-// checkRawRecorder stores a check and its raw data in one transaction; the
-// PostgreSQL store implements it.
-type checkRawRecorder interface {
-	RecordCheckWithRaw(ctx context.Context, a halfmark.Actor, c *halfmark.Check, r *halfmark.RawData) (halfmark.StoredCheck, bool, error)
-}
-
-// saveWithRaw stores the check and its raw file together when the store
-// can (all or nothing); otherwise it records the check, then attaches the
-// file unless a replay already has it.
-func (s *server) saveWithRaw(ctx context.Context, a halfmark.Actor, chk *halfmark.Check, raw *halfmark.RawData) (halfmark.StoredCheck, error) {
-	if rec, ok := s.d.Checks.(checkRawRecorder); ok {
-		st, _, err := rec.RecordCheckWithRaw(ctx, a, chk, raw)
-		return st, err
-	}
-	st, _, err := s.d.Checks.RecordCheck(ctx, a, chk)
-	if err != nil {
-		return st, err
-	}
-	existing, err := s.d.Raw.RawForCheck(ctx, st.ID)
-	if err != nil || len(existing) > 0 {
-		return st, err
-	}
-	raw.CheckID = st.ID
-	return st, s.d.Raw.AttachRaw(ctx, a, raw)
 }

@@ -23,7 +23,7 @@ var assets embed.FS
 // templates maps a page name to its template (the layout plus the page).
 type templates map[string]*template.Template
 
-var pageNames = []string{"login", "error", "front", "machine", "series", "entry", "monthly", "report", "findings", "finding"}
+var pageNames = []string{"login", "error", "front", "machine", "series", "entry", "monthly", "beam", "report", "findings", "finding"}
 
 func parseTemplates() (templates, error) {
 	t := templates{}
@@ -124,6 +124,9 @@ var funcs = template.FuncMap{
 		return p.Local().Format("2006-01-02")
 	},
 	"glyphSymbols": func() template.HTML { return glyphSymbols },
+	"verdictWords": verdictWords,
+	"component":    componentLabel,
+	"crossing":     crossingText,
 	"allows":       func(u *halfmark.User, r string) bool { return u != nil && u.Role.Allows(halfmark.Role(r)) },
 }
 
@@ -156,4 +159,23 @@ func signed(v float64) string {
 	}
 	s := fmt.Sprintf("%+.2f", v)
 	return strings.Replace(s, "-", "−", 1)
+}
+
+// verdictWords says what the drift engine checked and found: "in control"
+// only where the control-chart tests ran and passed, "within tolerance"
+// where only the limits could be checked.
+func verdictWords(verdict string, l halfmark.Level) string {
+	switch verdict {
+	case halfmark.VerdictInControl:
+		return "in control (control-chart tests ran and passed)"
+	case halfmark.VerdictWithinTolerance:
+		return "within tolerance (only the limits could be checked)"
+	case halfmark.VerdictBaselinePending:
+		return "within tolerance; baseline pending (too few points for the control charts)"
+	case halfmark.VerdictSignal:
+		return l.String()
+	case halfmark.VerdictNotEvaluated:
+		return "not evaluated (the data cannot be evaluated; see the signal line)"
+	}
+	return "evaluation pending"
 }

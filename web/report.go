@@ -11,7 +11,7 @@ import (
 	"strings"
 	"time"
 
-	"github.com/go-pdf/fpdf"
+	"codeberg.org/go-pdf/fpdf"
 	"github.com/labstack/echo/v4"
 	"gonum.org/v1/plot/vg"
 
@@ -349,8 +349,8 @@ func kindName(k halfmark.ComponentKind) string {
 	return string(k)
 }
 
-// crossingText says when a trend reaches the limits, as the engine stated.
-func crossingText(c halfmark.FindingCrossing) string {
+// reportCrossingText says when a trend reaches the limits, as the engine stated.
+func reportCrossingText(c halfmark.FindingCrossing) string {
 	day := func(t *time.Time) string {
 		if t == nil {
 			return "open"
@@ -632,7 +632,7 @@ func (r *Reporter) render(d *reportData) ([]byte, error) {
 		what := fmt.Sprintf("#%d %s %s. %s", f.ID, kindName(f.Kind), f.Name, plainNumbers(f.Message))
 		rows = append(rows, []string{what, f.Level.String(), string(f.State),
 			"opened " + f.OpenedAt.Local().Format("2006-01-02") + "; onset " + onset,
-			mag + ". " + crossingText(f.Crossing), handlingText(f)})
+			mag + ". " + reportCrossingText(f.Crossing), handlingText(f)})
 	}
 	if d.NoFindings {
 		rows = append(rows, []string{"findings are not available on this server", "", "", "", "", ""})
@@ -729,7 +729,7 @@ func seriesCaption(ev *halfmark.SeriesEvaluation, n int) string {
 	if ev.DeviationMM != nil {
 		s += " Newest deviation " + signed(*ev.DeviationMM) + " mm."
 	}
-	if c := crossingText(ev.Crossing); c != "" {
+	if c := reportCrossingText(ev.Crossing); c != "" {
 		s += " " + strings.ToUpper(c[:1]) + c[1:] + "."
 	}
 	return s

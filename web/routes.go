@@ -55,6 +55,7 @@ func (s *server) routes(e *echo.Echo) error {
 	g.GET("/", s.front, ther)
 	g.GET("/machines/:id", s.machine, ther)
 	g.GET("/machines/:id/report", s.report, ther)
+	g.GET("/machines/:id/beams/:beam", s.beam, ther)
 	g.POST("/machines/:id/report/sign", s.signReport, phys)
 	g.GET("/machines/:id/reports/:month", s.reportPage, ther)
 	g.GET("/machines/:id/reports/:month/draft.pdf", s.reportDraft, ther)

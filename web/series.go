@@ -67,7 +67,11 @@ func (s *server) seriesPage(c echo.Context, status int, form, formErr string) er
 		return s.failErr(c, err)
 	}
 	now := s.d.Now()
-	v := s.viewSeries(ser, pts, now, s.familySize(ctx, ser.MachineID))
+	ev, err := s.seriesEvaluation(ctx, id)
+	if err != nil {
+		return s.failErr(c, err)
+	}
+	v := viewSeries(ser, pts, ev)
 	d := seriesData{V: v, Machine: m, FormError: formErr, FormName: form, Today: now.Local().Format("2006-01-02"),
 		Back: c.Request().URL.Path}
 	for _, b := range beams {
@@ -80,7 +84,7 @@ func (s *server) seriesPage(c echo.Context, status int, form, formErr string) er
 		return s.failErr(c, err)
 	}
 	if v.EWMA != nil {
-		if d.EWMAChart, err = inlineSVG(ewmaPlot(timesOf(pts), v.EWMA, v.Centre), vg.Points(720), vg.Points(170), "EWMA chart"); err != nil {
+		if d.EWMAChart, err = inlineSVG(ewmaPlot(timesOf(pts[v.Start:]), v.EWMA, v.Centre), vg.Points(720), vg.Points(170), "EWMA chart"); err != nil {
 			return s.failErr(c, err)
 		}
 	}

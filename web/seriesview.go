@@ -2,182 +2,141 @@ package web
 
 import (
 	"context"
-	"fmt"
-	"math"
+	"slices"
 	"time"
 
 	"halfmark"
-	"halfmark/analysis/drift"
 	"halfmark/analysis/spc"
 )
 
-// seriesView is one series with what the pages show about it: its baseline
-// (centre, σ), the local limits, each point's signal, the EWMA chart, the
-// drift trend and its projected crossing of the tolerance.
+// seriesView is one series with what the pages show about it. Every number
+// in it — baseline, σ, control limits, each point's signals, the EWMA, the
+// trend, the level and the verdict word — is read from the drift engine's
+// stored evaluation (halfmark.SeriesEvaluation); the dashboard never judges
+// a series itself.
 type seriesView struct {
 	S      halfmark.Series
 	Points []halfmark.Point
+	Eval   *halfmark.SeriesEvaluation // nil: not evaluated yet
 	// Start is the index of the first point of the current baseline
-	// period; control statistics use Points[Start:].
-	Start              int
-	Centre, Sigma      float64
-	HasCentre          bool
-	HasSigma           bool
-	Limits             halfmark.Limits
-	HasLimits          bool
-	Kind               halfmark.CheckKind // kind of the newest point
-	Latest             *halfmark.Point
-	Deviation          *float64 // newest value − centre, mm
-	Level              halfmark.Level
-	Rule               string
-	Signal             []bool // per point: beyond L·σ or beyond tolerance (current period only)
-	EWMA               *spc.EWMAResult
-	Trend              *spc.TrendResult
-	Crossing           *time.Time
-	UCL, LCL           float64 // centre ± L·σ
-	L                  float64 // control-limit width in σ (3 for a lone series)
-	Family             int     // series of the machine
-	BaselineNote       string
-	ToleranceMissingBy string
+	// period (the points the engine charted).
+	Start         int
+	Centre, Sigma float64
+	HasCentre     bool
+	HasSigma      bool
+	Limits        halfmark.Limits
+	HasLimits     bool
+	Kind          halfmark.CheckKind // kind of the newest point
+	Latest        *halfmark.Point
+	Deviation     *float64 // newest value − centre, mm
+	Level         halfmark.Level
+	Rule          string
+	Verdict       string // the engine's verdict word, or "pending"
+	Signal        []bool // per point: a rule family flagged it (current period only)
+	EWMA          *spc.EWMAResult
+	Trend         *halfmark.SeriesTrend
+	Crossing      *time.Time // projected tolerance crossing (status "projected" only)
+	UCL, LCL      float64
+	L             float64 // control-limit width in σ
+	BaselineNote  string
+	FindingIDs    []int64
 }
 
-// trendMinPoints is the fewest points for a Theil–Sen trend with a 95 %
-// interval (spc.Trend needs n ≥ 6).
-const trendMinPoints = 6
+// VerdictPending is shown for a series the engine has not evaluated yet.
+const VerdictPending = "pending"
 
-// viewSeries computes a series' view from its points. It never fails on
-// data: what cannot be computed is left out and said in BaselineNote.
-// family is the number of series of the machine: the control limits are
-// widened with it exactly as the drift engine widens them
-// (drift.ShewhartL), and a family member's EWMA does not raise Level 1.
-func (s *server) viewSeries(ser halfmark.Series, pts []halfmark.Point, now time.Time, family int) seriesView {
-	v := seriesView{S: ser, Points: pts, Signal: make([]bool, len(pts)), L: drift.ShewhartL(family), Family: family}
-	if len(pts) == 0 {
-		v.BaselineNote = "no points yet"
+// viewSeries lays a series' points beside its stored evaluation (ev may be
+// nil: not evaluated yet).
+func viewSeries(ser halfmark.Series, pts []halfmark.Point, ev *halfmark.SeriesEvaluation) seriesView {
+	v := seriesView{S: ser, Points: pts, Eval: ev, Signal: make([]bool, len(pts)), Verdict: VerdictPending}
+	if len(pts) > 0 {
+		last := pts[len(pts)-1]
+		v.Latest, v.Kind = &last, last.Kind
+	}
+	if ev == nil {
+		v.BaselineNote = "not evaluated yet: the drift engine evaluates new points within seconds"
+		v.Start = len(pts)
 		return v
 	}
-	last := pts[len(pts)-1]
-	v.Latest = &last
-	v.Kind = last.Kind
-	if b := ser.Baseline; b != nil {
-		for v.Start < len(pts) && pts[v.Start].MeasuredAt.Before(b.ValidFrom) {
-			v.Start++
+	ch := &ev.Chart
+	v.Verdict, v.Level, v.Rule, v.Deviation, v.FindingIDs = ev.Verdict, ev.Level, ev.Rule, ev.DeviationMM, ev.FindingIDs
+	if ev.Kind != "" {
+		v.Kind = ev.Kind
+	}
+	if ev.Limits != nil {
+		v.Limits, v.HasLimits = *ev.Limits, true
+	}
+	v.Start = max(0, len(pts)-len(ch.Points))
+	if len(ch.Points) > 0 && ev.Verdict != halfmark.VerdictNotEvaluated {
+		v.Centre, v.HasCentre = ch.Centre, ev.DeviationMM != nil || ev.BaselineMM != 0 || ch.Sigma != nil
+	}
+	if ev.BaselineEstimated {
+		v.BaselineNote = "baseline estimated from the first points of the period"
+	}
+	if ev.Verdict == halfmark.VerdictBaselinePending {
+		v.BaselineNote = "baseline pending: too few points in the period to estimate it"
+	}
+	if ch.Sigma != nil && *ch.Sigma > 0 {
+		v.Sigma, v.HasSigma = *ch.Sigma, true
+		if ch.UCL != nil && ch.LCL != nil {
+			v.UCL, v.LCL = *ch.UCL, *ch.LCL
+			v.L = (v.UCL - v.Centre) / v.Sigma
 		}
 	}
-	cur := pts[v.Start:]
-	vals := make([]float64, len(cur))
-	for i, p := range cur {
-		vals[i] = p.Value
-	}
-	var estC, estS float64
-	var estErr error
-	if len(vals) > 0 {
-		estC, estS, estErr = spc.EstimateBaseline(vals, spc.DefaultBaselinePoints)
-	} else {
-		estErr = fmt.Errorf("no points since the baseline period began")
-	}
-	if b := ser.Baseline; b != nil && b.ValueMM != nil {
-		v.Centre, v.HasCentre = *b.ValueMM, true
-	} else if estErr == nil {
-		v.Centre, v.HasCentre = estC, true
-		v.BaselineNote = fmt.Sprintf("baseline estimated from the first %d points of the period", min(len(vals), spc.DefaultBaselinePoints))
-	} else {
-		v.BaselineNote = "no baseline yet: " + estErr.Error()
-	}
-	if b := ser.Baseline; b != nil && b.SigmaMM != nil {
-		v.Sigma, v.HasSigma = *b.SigmaMM, true
-	} else if estErr == nil && estS > 0 {
-		v.Sigma, v.HasSigma = estS, true
-	}
-	v.Limits, v.HasLimits = s.d.Tolerances.Limits(ser.Quantity, v.Kind, ser.Edge, false)
-	if !v.HasCentre {
-		return v
-	}
-	dev := last.Value - v.Centre
-	if v.Start < len(pts) {
-		v.Deviation = &dev
-	}
-	if v.HasSigma {
-		v.UCL, v.LCL = v.Centre+v.L*v.Sigma, v.Centre-v.L*v.Sigma
-	}
-	for i := v.Start; i < len(pts); i++ {
-		d := math.Abs(pts[i].Value - v.Centre)
-		v.Signal[i] = (v.HasSigma && (pts[i].Value > v.UCL || pts[i].Value < v.LCL)) ||
-			(v.HasLimits && d > v.Limits.ToleranceMM)
-	}
-	if v.HasSigma && len(vals) > 0 {
-		if r, err := spc.EWMA(vals, spc.EWMAOptions{Target: v.Centre, Sigma: v.Sigma}); err == nil {
-			v.EWMA = &r
+	ew := &spc.EWMAResult{Lambda: ch.EWMALambda, L: ch.EWMAL, FirstSignal: -1}
+	for i, p := range ch.Points {
+		j := v.Start + i
+		if j < len(v.Signal) {
+			v.Signal[j] = len(p.Signals) > 0
+		}
+		if p.EWMA != nil && p.EWMAUCL != nil && p.EWMALCL != nil {
+			ew.Z, ew.UCL, ew.LCL = append(ew.Z, *p.EWMA), append(ew.UCL, *p.EWMAUCL), append(ew.LCL, *p.EWMALCL)
+			ew.Signal = append(ew.Signal, slices.Contains(p.Signals, "ewma"))
 		}
 	}
-	if len(cur) >= trendMinPoints {
-		times := make([]time.Time, len(cur))
-		for i, p := range cur {
-			times[i] = p.MeasuredAt
-		}
-		if tr, err := spc.TrendTimes(times, vals, spc.TrendOptions{}); err == nil {
-			v.Trend = &tr
-			if v.HasLimits {
-				up := spc.ProjectCrossing(tr, now, v.Centre+v.Limits.ToleranceMM)
-				down := spc.ProjectCrossing(tr, now, v.Centre-v.Limits.ToleranceMM)
-				v.Crossing = earliest(up, down)
-			}
-		}
+	if len(ew.Z) == len(ch.Points) && len(ew.Z) > 0 {
+		v.EWMA = ew
 	}
-	v.Level, v.Rule = v.level()
+	v.Trend = ev.Trend
+	if ev.Crossing.Status == halfmark.CrossingProjected {
+		v.Crossing = ev.Crossing.ToleranceDate
+	}
 	return v
 }
 
-func earliest(a, b *time.Time) *time.Time {
-	switch {
-	case a == nil:
-		return b
-	case b == nil:
-		return a
-	case b.Before(*a):
-		return b
+// seriesEvaluation reads a series' stored evaluation; nil when there is
+// none yet (or no evaluation store).
+func (s *server) seriesEvaluation(ctx context.Context, id int64) (*halfmark.SeriesEvaluation, error) {
+	if s.d.Evaluations == nil {
+		return nil, nil
 	}
-	return a
+	ev, err := s.d.Evaluations.SeriesEvaluation(ctx, id)
+	if halfmark.ErrorCodeOf(err) == halfmark.ENotFound {
+		return nil, nil
+	}
+	if err != nil {
+		return nil, err
+	}
+	return &ev, nil
 }
 
-// level is the TG-142 level of the newest point: beyond the action limit
-// (3), beyond tolerance (2), a statistical signal or a projected crossing
-// inside 30 days (1).
-func (v seriesView) level() (halfmark.Level, string) {
-	if v.Deviation == nil {
-		return halfmark.LevelInControl, ""
-	}
-	d := math.Abs(*v.Deviation)
-	n := len(v.Points) - 1
-	switch {
-	case v.HasLimits && d > v.Limits.ActionMM:
-		return halfmark.LevelImmediate, "beyond action limit"
-	case v.HasLimits && d > v.Limits.ToleranceMM:
-		return halfmark.LevelScheduled, "beyond tolerance"
-	case v.HasSigma && v.Signal[n]:
-		return halfmark.LevelInspect, fmt.Sprintf("beyond %.3gσ control limit", v.L)
-	case v.Family <= 1 && v.EWMA != nil && len(v.EWMA.Signal) > 0 && v.EWMA.Signal[len(v.EWMA.Signal)-1]:
-		return halfmark.LevelInspect, "EWMA signal"
-	case v.Crossing != nil && v.Latest != nil && v.Crossing.Sub(v.Latest.MeasuredAt) < 30*24*time.Hour:
-		return halfmark.LevelInspect, "trend projected to cross tolerance"
-	}
-	return halfmark.LevelInControl, ""
-}
-
-// machineViews loads and computes every series of a machine.
+// machineViews loads every series of a machine with its stored evaluation.
 func (s *server) machineViews(ctx context.Context, machineID int64) ([]seriesView, error) {
 	ss, err := s.d.Series.MachineSeries(ctx, machineID)
 	if err != nil {
 		return nil, err
 	}
-	now := s.d.Now()
 	out := make([]seriesView, 0, len(ss))
 	for _, ser := range ss {
 		pts, err := s.d.Series.Points(ctx, ser.ID)
 		if err != nil {
 			return nil, err
 		}
-		out = append(out, s.viewSeries(ser, pts, now, len(ss)))
+		ev, err := s.seriesEvaluation(ctx, ser.ID)
+		if err != nil {
+			return nil, err
+		}
+		out = append(out, viewSeries(ser, pts, ev))
 	}
 	return out, nil
 }

@@ -58,10 +58,11 @@ type Deps struct {
 	Events     ServiceEventLister
 	Audit      halfmark.AuditService
 	Tolerances halfmark.ToleranceBook
-	// Findings, Evaluations and Reports: what the drift engine stored and
-	// the signed reports (nil: the pages say the part is not available).
+	// Findings and Evaluations read what the drift engine decided (nil:
+	// the pages say it is not available).
 	Findings    halfmark.FindingService
 	Evaluations halfmark.EvaluationService
+	Verdicts    halfmark.VerdictService // stored evaluations; optional: without it no verdict is shown
 	Reports     halfmark.ReportService
 	// Instruction is shown beside a Level 2 or 3 morning verdict (empty:
 	// DefaultInstruction).
@@ -73,6 +74,10 @@ type Deps struct {
 	// (default 12 h); SessionMaxAge ends it in any case (default 7 days).
 	SessionIdle   time.Duration
 	SessionMaxAge time.Duration
+
+	// Penumbra reads penumbra data for the beam page (nil: the page says
+	// the model is not available).
+	Penumbra halfmark.PenumbraService
 }
 
 // Register adds the dashboard's routes, with their security headers,

@@ -2,6 +2,7 @@ package worker
 
 import (
 	"context"
+	"halfmark"
 	"io"
 	"log/slog"
 	"testing"
@@ -55,13 +56,13 @@ func seedBench(b *testing.B) (*db.DB, time.Time) {
 }
 
 // BenchmarkEvaluation compares evaluation with reading the same points
-// from PostgreSQL, in the same run: "read" loads every series with its
-// points (db.LoadEvalSeries, 250 series a batch); "evaluate" runs the
-// drift engine on what was read (pure, no I/O); the ratio evaluate/read is
-// reported as eval/read. "full-job" is the whole nightly job (read,
-// evaluate, store); "incremental-200" stores 200 new points (one new check
-// on 50 geometries) and runs the incremental job on the 200 series that
-// received them.
+// from PostgreSQL, in the same run: "read" loads every machine's series with
+// their points (db.LoadMachineSeries); "evaluate" runs the drift engine on
+// what was read (EvaluateMachine: pure, no I/O); the ratio evaluate/read is
+// reported as eval/read beside both times. "full-job" is the whole nightly
+// job (read, evaluate, store); "incremental" stores one new check on 5
+// geometries of every machine and runs the incremental job, which evaluates
+// each touched machine whole (its components pool every series).
 func BenchmarkEvaluation(b *testing.B) {
 	d, now := seedBench(b)
 	ctx := context.Background()
@@ -69,18 +70,18 @@ func BenchmarkEvaluation(b *testing.B) {
 	if err != nil {
 		b.Fatal(err)
 	}
-	ids, err := d.SeriesToEvaluate(ctx, false)
-	if err != nil || len(ids) != 2000 {
-		b.Fatalf("%d series, %v", len(ids), err)
+	ids, err := d.MachinesToEvaluate(ctx, false)
+	if err != nil || len(ids) != 10 {
+		b.Fatalf("%d machines, %v", len(ids), err)
 	}
-	read := func() []db.EvalSeries {
-		var all []db.EvalSeries
-		for lo := 0; lo < len(ids); lo += 250 {
-			ss, err := d.LoadEvalSeries(ctx, ids[lo:min(lo+250, len(ids))], now)
+	read := func() [][]halfmark.SeriesData {
+		var all [][]halfmark.SeriesData
+		for _, id := range ids {
+			ss, err := d.LoadMachineSeries(ctx, id, now)
 			if err != nil {
 				b.Fatal(err)
 			}
-			all = append(all, ss...)
+			all = append(all, ss)
 		}
 		return all
 	}
@@ -92,8 +93,11 @@ func BenchmarkEvaluation(b *testing.B) {
 			all := read()
 			readTime += time.Since(t)
 			t = time.Now()
-			if evs := EvaluateBatch(all, w.Tolerances(), w.cfg.Drift, now); len(evs) != len(all) {
-				b.Fatalf("%d evaluations of %d series", len(evs), len(all))
+			for i, ss := range all {
+				ev, err := EvaluateMachine(ids[i], ss, w.Tolerances(), w.Detection(), now)
+				if err != nil || len(ev.Series) != len(ss) {
+					b.Fatalf("%d evaluations of %d series: %v", len(ev.Series), len(ss), err)
+				}
 			}
 			evalTime += time.Since(t)
 			rounds++
@@ -109,7 +113,7 @@ func BenchmarkEvaluation(b *testing.B) {
 			}
 		}
 	})
-	b.Run("incremental-200", func(b *testing.B) {
+	b.Run("incremental-10-machines", func(b *testing.B) {
 		if _, err := w.Evaluate(ctx, true); err != nil { // every series evaluated once: only new points remain
 			b.Fatal(err)
 		}
@@ -132,8 +136,8 @@ func BenchmarkEvaluation(b *testing.B) {
 			if err != nil {
 				b.Fatal(err)
 			}
-			if s.Series != 200 {
-				b.Fatalf("incremental run evaluated %d series, want 200", s.Series)
+			if s.Machines != 10 {
+				b.Fatalf("incremental run evaluated %d machines, want 10", s.Machines)
 			}
 		}
 	})

@@ -87,9 +87,9 @@ func (f *fixture) check(k int, dx1, dx2 float64) {
 
 // worker returns a worker on the fixture's store with the given tolerance
 // file content ("" : the shipped example).
-func (f *fixture) worker(id, book string, hook db.AlertHook) *Worker {
+func (f *fixture) worker(id, book string, n halfmark.FindingNotifier) *Worker {
 	f.t.Helper()
-	cfg := Config{WorkerID: id, Now: f.clock.Now, Location: time.UTC, EnqueueAlert: hook}
+	cfg := Config{WorkerID: id, Now: f.clock.Now, Location: time.UTC, Notifier: n}
 	if book != "" {
 		p := filepath.Join(f.t.TempDir(), "tolerances.toml")
 		if err := os.WriteFile(p, []byte(book), 0o644); err != nil {

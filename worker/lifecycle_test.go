@@ -11,8 +11,9 @@ import (
 	"halfmark/db"
 )
 
-// Acknowledge and resolve by hand, each with its audit row; the states
-// follow open → acknowledged → resolved and refuse other moves.
+// Acknowledge and resolve a finding by hand, each with its audit row; the
+// states follow open → acknowledged → resolved and refuse other moves, and
+// the finding's evidence alerts follow it.
 func TestAcknowledgeResolve(t *testing.T) {
 	f := newFixture(t)
 	w := f.worker("w1", customBook, nil)
@@ -23,39 +24,45 @@ func TestAcknowledgeResolve(t *testing.T) {
 	if _, err := w.Evaluate(f.ctx, false); err != nil {
 		t.Fatal(err)
 	}
-	open := f.alerts(f.seriesID("X1"), halfmark.AlertOpen)
-	if len(open) == 0 {
-		t.Fatal("no open alert after a 3 mm step")
+	open := f.findings("open")
+	if len(open) != 1 {
+		t.Fatalf("%d open findings after a 3 mm step of one jaw, want 1", len(open))
 	}
 	id := open[0].ID
 	phys := halfmark.Actor{Name: "physicist@clinic", Role: halfmark.RolePhysicist}
-	al, err := f.db.Acknowledge(f.ctx, phys, id, "seen, jaw service booked")
+	fd, err := f.db.AcknowledgeFinding(f.ctx, phys, id, "seen, jaw service booked")
 	if err != nil {
 		t.Fatal(err)
 	}
-	if al.State != halfmark.AlertAcknowledged || al.AckBy != phys.Name || al.AckAt == nil || al.AckComment != "seen, jaw service booked" {
-		t.Errorf("after acknowledge: %+v", al)
+	if fd.State != halfmark.FindingAcknowledged || fd.AckBy != phys.Name || fd.AckAt == nil || fd.AckComment != "seen, jaw service booked" {
+		t.Errorf("after acknowledge: %+v", fd)
 	}
-	if _, err := f.db.Acknowledge(f.ctx, phys, id, "again"); halfmark.ErrorCodeOf(err) != halfmark.EConflict {
+	if n := f.count(`SELECT count(*) FROM alerts WHERE finding_id = $1 AND state <> 'acknowledged'`, id); n != 0 {
+		t.Errorf("%d evidence alerts not acknowledged with their finding", n)
+	}
+	if _, err := f.db.AcknowledgeFinding(f.ctx, phys, id, "again"); halfmark.ErrorCodeOf(err) != halfmark.EConflict {
 		t.Errorf("second acknowledge: %v, want a conflict", err)
 	}
-	if _, err := f.db.Resolve(f.ctx, phys, id, "  "); halfmark.ErrorCodeOf(err) != halfmark.EInvalid {
+	if _, err := f.db.ResolveFinding(f.ctx, phys, id, "  "); halfmark.ErrorCodeOf(err) != halfmark.EInvalid {
 		t.Errorf("resolve without a comment: %v, want invalid", err)
 	}
-	al, err = f.db.Resolve(f.ctx, phys, id, "X1 jaw recalibrated")
+	fd, err = f.db.ResolveFinding(f.ctx, phys, id, "X1 jaw recalibrated")
 	if err != nil {
 		t.Fatal(err)
 	}
-	if al.State != halfmark.AlertResolved || al.ResolvedBy != phys.Name || al.ResolvedAt == nil {
-		t.Errorf("after resolve: %+v", al)
+	if fd.State != halfmark.FindingResolved || fd.ResolvedBy != phys.Name || fd.ResolvedAt == nil {
+		t.Errorf("after resolve: %+v", fd)
 	}
-	if _, err := f.db.Resolve(f.ctx, phys, id, "again"); halfmark.ErrorCodeOf(err) != halfmark.EConflict {
+	if n := f.count(`SELECT count(*) FROM alerts WHERE finding_id = $1 AND state <> 'resolved'`, id); n != 0 {
+		t.Errorf("%d evidence alerts not resolved with their finding", n)
+	}
+	if _, err := f.db.ResolveFinding(f.ctx, phys, id, "again"); halfmark.ErrorCodeOf(err) != halfmark.EConflict {
 		t.Errorf("second resolve: %v, want a conflict", err)
 	}
-	if _, err := f.db.Acknowledge(f.ctx, phys, 999999, "x"); halfmark.ErrorCodeOf(err) != halfmark.ENotFound {
-		t.Errorf("acknowledge of a missing alert: %v, want not found", err)
+	if _, err := f.db.AcknowledgeFinding(f.ctx, phys, 999999, "x"); halfmark.ErrorCodeOf(err) != halfmark.ENotFound {
+		t.Errorf("acknowledge of a missing finding: %v, want not found", err)
 	}
-	entries, err := f.db.Audit(f.ctx, "alert", itoa(id), 10)
+	entries, err := f.db.Audit(f.ctx, "finding", itoa(id), 10)
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -69,9 +76,9 @@ func TestAcknowledgeResolve(t *testing.T) {
 	}
 }
 
-// After a 0.45 mm spike (≈ 4.5σ for σ ≈ 0.1 mm, inside the 5 mm test
-// tolerance), the first M = 5 in-control points in a row resolve the alert
-// automatically, with an audit row.
+// After a 0.6 mm spike (≈ 6σ for σ ≈ 0.1 mm, inside the 5 mm test
+// tolerance) the jaw's finding opens, and the first 5 in-control sessions in
+// a row resolve it automatically, with an audit row.
 func TestAutoResolveAfterMPoints(t *testing.T) {
 	f := newFixture(t)
 	book := strings.NewReplacer("tolerance_mm = 2.0", "tolerance_mm = 5.0", "action_mm = 2.5", "action_mm = 6.0").Replace(customBook)
@@ -79,34 +86,29 @@ func TestAutoResolveAfterMPoints(t *testing.T) {
 	for k := 0; k < 25; k++ {
 		f.check(k, 0, 0)
 	}
-	f.check(25, 0.45, 0) // ≈ 4.5σ: a Shewhart signal; EWMA and CUSUM decay within a few points
+	f.check(25, 0.6, 0) // a Shewhart signal on the pooled chart; the CUSUM decays within a few sessions
 	if _, err := w.Evaluate(f.ctx, false); err != nil {
 		t.Fatal(err)
 	}
-	x1 := f.seriesID("X1")
-	if len(f.alerts(x1)) == 0 {
-		t.Fatal("no alert after the spike")
+	if len(f.findings("active")) == 0 {
+		t.Fatal("no finding after the spike")
 	}
-	for k := 26; k < 40; k++ {
+	for k := 26; k < 45; k++ {
 		f.check(k, 0, 0)
 		if _, err := w.Evaluate(f.ctx, false); err != nil {
 			t.Fatal(err)
 		}
-		if len(f.alerts(x1)) == 0 {
-			var run int
-			if err := f.db.Pool.QueryRow(f.ctx, `SELECT (details->'verdict'->>'in_control_run')::int FROM evaluations WHERE series_id = $1 ORDER BY id DESC LIMIT 1`, x1).Scan(&run); err != nil {
-				t.Fatal(err)
+		if len(f.findings("active")) == 0 {
+			if k-25 < 5 {
+				t.Errorf("resolved after %d in-control sessions, want at least 5", k-25)
 			}
-			if run != 5 {
-				t.Errorf("resolved with %d in-control points, want M = 5", run)
-			}
-			if n := f.count(`SELECT count(*) FROM audit_log WHERE action = 'auto-resolve'`); n == 0 {
-				t.Error("no audit row for the automatic resolution")
+			if n := f.count(`SELECT count(*) FROM audit_log WHERE entity = 'finding' AND action = 'auto-resolve'`); n != 1 {
+				t.Errorf("%d audit rows for the automatic resolution, want 1", n)
 			}
 			return
 		}
 	}
-	t.Fatal("the alert never resolved itself")
+	t.Fatal("the finding never resolved itself")
 }
 
 // A service event with a new baseline starts a new period for the named
@@ -142,17 +144,15 @@ func TestServiceEventStartsNewBaseline(t *testing.T) {
 	if len(bs) != 1 || bs[0].Source != halfmark.BaselineService || bs[0].ValueMM != nil || !bs[0].ValidFrom.Equal(at) {
 		t.Fatalf("baselines %+v, want one service version from %s", bs, at)
 	}
-	var n int
-	var pending bool
-	if err := f.db.Pool.QueryRow(f.ctx, `SELECT (details->'verdict'->>'n')::int, (details->'verdict'->>'baseline_pending')::bool
-		FROM evaluations WHERE series_id = $1 ORDER BY id DESC LIMIT 1`, x2).Scan(&n, &pending); err != nil {
+	se, err := f.db.SeriesEvaluation(f.ctx, x2)
+	if err != nil {
 		t.Fatal(err)
 	}
-	if n != 3 || !pending {
-		t.Errorf("X2 evaluated on %d points (pending %v), want the 3 after the service event, baseline pending", n, pending)
+	if n := len(se.Chart.Points); n != 3 || se.Verdict != halfmark.VerdictBaselinePending {
+		t.Errorf("X2 evaluated on %d points (verdict %s), want the 3 after the service event, baseline pending", n, se.Verdict)
 	}
-	if len(f.alerts(x2)) != 0 {
-		t.Error("the step at the service event raised an alert")
+	if len(f.alerts(x2)) != 0 || len(f.findings("all")) != 0 {
+		t.Error("the step at the service event raised an alert or a finding")
 	}
 	if got := f.count(`SELECT count(*) FROM audit_log WHERE action = 'set-baseline' AND entity_id = $1`, itoa(x2)); got != 1 {
 		t.Errorf("%d baseline audit rows, want 1", got)

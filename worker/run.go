@@ -3,212 +3,140 @@ package worker
 import (
 	"context"
 	"fmt"
-	"math"
-	"regexp"
-	"strconv"
-	"strings"
 	"time"
 
 	"halfmark"
 	"halfmark/analysis/drift"
-	"halfmark/db"
 )
 
 // Summary counts what an evaluation run did.
 type Summary struct {
-	Series int
-	Points int
-	Levels [4]int // series per current level
+	Machines int
+	Series   int
+	Points   int
+	Levels   [4]int // series per current level
+	Findings [4]int // active findings per level (index 1–3)
 
 	OverdueOpened, OverdueResolved int // beam-level overdue alerts
 	Took                           time.Duration
 }
 
 func (s Summary) String() string {
-	return fmt.Sprintf("%d series, %d points; level 1/2/3: %d/%d/%d; overdue alerts +%d −%d; %s", s.Series, s.Points,
-		s.Levels[1], s.Levels[2], s.Levels[3], s.OverdueOpened, s.OverdueResolved, s.Took.Round(time.Millisecond))
+	return fmt.Sprintf("%d machines, %d series, %d points; series level 1/2/3: %d/%d/%d; active findings level 1/2/3: %d/%d/%d; overdue alerts +%d −%d; %s",
+		s.Machines, s.Series, s.Points, s.Levels[1], s.Levels[2], s.Levels[3], s.Findings[1], s.Findings[2], s.Findings[3],
+		s.OverdueOpened, s.OverdueResolved, s.Took.Round(time.Millisecond))
 }
 
-// Evaluate evaluates every series (full) or those with new points or
-// baselines since their last evaluation, in batches, and stores the
-// results with the tolerance hash in force.
+// Evaluate evaluates every machine (full) or those with new checks or
+// baselines since their last evaluation. A machine is evaluated whole —
+// every series and every component — because a component pools the views
+// of all its series (drift.EvaluateMachine), and stored in one transaction.
 func (w *Worker) Evaluate(ctx context.Context, full bool) (Summary, error) {
 	start := w.cfg.Now()
 	var sum Summary
-	ids, err := w.db.SeriesToEvaluate(ctx, !full)
+	ids, err := w.store.MachinesToEvaluate(ctx, !full)
 	if err != nil {
 		return sum, err
 	}
-	book := w.book.Load()
-	for lo := 0; lo < len(ids); lo += w.cfg.BatchSize {
-		batch := ids[lo:min(lo+w.cfg.BatchSize, len(ids))]
-		now := w.cfg.Now()
-		ss, err := w.db.LoadEvalSeries(ctx, batch, now)
-		if err != nil {
+	for _, id := range ids {
+		if err := w.evaluateMachine(ctx, id, &sum); err != nil {
 			return sum, err
 		}
-		evs := EvaluateBatch(ss, book, w.cfg.Drift, now)
-		if err := w.db.RecordEvaluations(ctx, evs, w.cfg.EnqueueAlert); err != nil {
-			return sum, err
-		}
-		for i := range ss {
-			sum.Points += len(ss[i].ValuesMM)
-		}
-		for _, e := range evs {
-			sum.Levels[e.Level]++
-		}
-		sum.Series += len(evs)
 	}
-	if sum.OverdueOpened, sum.OverdueResolved, err = w.db.SyncOverdueAlerts(ctx, w.cfg.Now(), w.cfg.Status); err != nil {
+	if sum.OverdueOpened, sum.OverdueResolved, err = w.store.SyncOverdueAlerts(ctx, w.cfg.Now(), w.cfg.Status); err != nil {
 		return sum, err
 	}
 	sum.Took = w.cfg.Now().Sub(start)
 	return sum, nil
 }
 
-// EvaluateBatch evaluates loaded series (pure: no I/O). A series whose
-// data cannot be evaluated is stored at Level 0 with the reason as its
-// rule rather than stopping the batch.
-func EvaluateBatch(ss []db.EvalSeries, book halfmark.ToleranceBook, o drift.Options, now time.Time) []db.Evaluation {
-	o.Now = now
-	evs := make([]db.Evaluation, len(ss))
-	verdicts := make([]drift.Verdict, len(ss))
+// EvaluateMachineNow evaluates one machine at once (after a check that may
+// change its level), outside the schedule.
+func (w *Worker) EvaluateMachineNow(ctx context.Context, machineID int64) error {
+	var sum Summary
+	return w.evaluateMachine(ctx, machineID, &sum)
+}
+
+func (w *Worker) evaluateMachine(ctx context.Context, id int64, sum *Summary) error {
+	w.evalMu.Lock()
+	defer w.evalMu.Unlock()
+	now := w.cfg.Now()
+	ss, err := w.store.LoadMachineSeries(ctx, id, now)
+	if err != nil {
+		return err
+	}
+	ev, err := EvaluateMachine(id, ss, w.book.Load(), *w.detection.Load(), now)
+	if err != nil {
+		return fmt.Errorf("machine %d: %w", id, err)
+	}
+	w.penumbraCauses(ctx, &ev, ss)
+	if err := w.store.RecordMachineEvaluation(ctx, &ev, w.cfg.Notifier); err != nil {
+		return err
+	}
+	sum.Machines++
 	for i := range ss {
-		v, lim, details := EvaluateSeries(&ss[i], book, o)
-		verdicts[i] = v
-		evs[i] = evaluation(&ss[i], v, lim, details, book.Hash(), now)
+		sum.Points += len(ss[i].ValuesMM)
 	}
-	attribute(ss, verdicts, evs, book)
-	return evs
+	for _, s := range ev.Series {
+		sum.Levels[s.Evaluation.Level]++
+	}
+	sum.Series += len(ev.Series)
+	for _, c := range ev.Components {
+		if c.Active {
+			sum.Findings[c.Finding.Level]++
+		}
+	}
+	return nil
 }
 
-// Details is what an evaluation stores besides its level: the verdict
-// without the per-point chart, the limits and where they come from.
-type Details struct {
-	Verdict     drift.Verdict      `json:"verdict"`
-	Kind        halfmark.CheckKind `json:"kind"`
-	Asymmetric  bool               `json:"asymmetric"`
-	Limits      *halfmark.Limits   `json:"limits"`
-	Error       string             `json:"error,omitempty"`
-	Pair        *PairCheck         `json:"pair,omitempty"`
-	Bank        *BankCheck         `json:"bank,omitempty"`
-	Tolerances  string             `json:"tolerances"`
-	Shipped     bool               `json:"shipped_tolerances"`
-	ChartPoints int                `json:"chart_points"`
-}
-
-// EvaluateSeries evaluates one loaded series with the limits the book sets
-// for its newest point's check kind. The verdict keeps its chart.
-func EvaluateSeries(s *db.EvalSeries, book halfmark.ToleranceBook, o drift.Options) (drift.Verdict, *halfmark.Limits, *Details) {
-	kind := kindOf(s)
-	asym := Asymmetric(s)
-	det := &Details{Kind: kind, Asymmetric: asym, Tolerances: book.Source(), Shipped: book.IsShippedExample()}
-	in := drift.Input{ValuesMM: s.ValuesMM, Times: s.Times}
-	if o.FamilySize == 0 {
-		o.FamilySize = s.FamilySize
+// EvaluateMachine runs the drift engine on one machine's series as the
+// store gives them and returns what it decided, ready to store (pure: no
+// I/O). It is the engine entry point the worker, the demo and the detection
+// benchmark share.
+func EvaluateMachine(machineID int64, ss []halfmark.SeriesData, book halfmark.ToleranceBook, det drift.Detection, now time.Time) (halfmark.MachineEvaluation, error) {
+	ev := halfmark.MachineEvaluation{MachineID: machineID, At: now, ToleranceHash: book.Hash()}
+	in := make([]drift.SeriesInput, len(ss))
+	byID := make(map[int64]int, len(ss))
+	for i := range ss {
+		s := &ss[i]
+		byID[s.ID] = i
+		in[i] = drift.SeriesInput{ID: s.ID, MachineID: s.MachineID, BeamID: s.BeamID, MachineName: s.MachineName,
+			BeamLabel: s.BeamLabel, Geometry: s.Geometry, Edge: s.Edge, Quantity: s.Quantity, Method: s.Method,
+			BaselineValueMM: s.BaselineValueMM, BaselineSigmaMM: s.BaselineSigmaMM, BaselineFrom: s.BaselineFrom,
+			CUSUMRestart: s.CUSUMRestart, Times: s.Times, ValuesMM: s.ValuesMM, Kinds: s.Kinds, CheckIDs: s.CheckIDs}
 	}
-	in.Baseline.ValueMM, in.Baseline.SigmaMM = s.BaselineValueMM, s.BaselineSigmaMM
-	if s.BaselineFrom != nil {
-		in.Baseline.Start = *s.BaselineFrom
-	}
-	if in.Baseline.ValueMM == nil && s.Quantity == halfmark.QLightOffset {
-		// Light/radiation coincidence is judged against zero offset
-		// (TG-142 states it as an absolute tolerance).
-		zero := 0.0
-		in.Baseline.ValueMM = &zero
-	}
-	if s.CUSUMRestart != nil {
-		in.CUSUMRestart = *s.CUSUMRestart
-	}
-	var limp *halfmark.Limits
-	if l, ok := book.Limits(s.Quantity, kind, s.Edge, asym); ok {
-		in.Limits = drift.Limits{ToleranceMM: l.ToleranceMM, ActionMM: l.ActionMM}
-		limp = &l
-	}
-	det.Limits = limp
-	v, err := drift.Evaluate(in, o)
+	res, err := drift.EvaluateMachine(in, book, det, now)
 	if err != nil {
-		det.Error = err.Error()
-		v = drift.Verdict{Rule: "not evaluated: " + err.Error(), N: len(s.ValuesMM)}
+		return ev, err
 	}
-	det.ChartPoints = len(v.Chart.Points)
-	return v, limp, det
-}
-
-var geometrySize = regexp.MustCompile(`^([0-9.]+)×([0-9.]+) cm`)
-
-// asymmetryMM is how far (mm) a jaw's baseline may sit from half the
-// nominal field before the setting counts as asymmetric: well above any
-// tolerance, well below a half-beam block (common practice).
-const asymmetryMM = 5.0
-
-// Asymmetric reports whether a jaw position series belongs to an
-// asymmetric setting: its baseline (or first value) differs from half the
-// nominal field side of its geometry ("10×10 cm, iso" → 50 mm) by more
-// than 5 mm. Other quantities and unparsable geometries count as
-// symmetric.
-func Asymmetric(s *db.EvalSeries) bool {
-	e, err := halfmark.ParseEdge(s.Edge)
-	if err != nil || e.Jaw == "" || s.Quantity != halfmark.QPosition {
-		return false
+	for _, r := range res.Series {
+		i, ok := byID[r.SeriesID]
+		if !ok {
+			continue
+		}
+		s := ss[i]
+		e := r.Evaluation
+		e.ToleranceHash = book.Hash()
+		if tr := r.Verdict.Trend; tr != nil && len(s.Times) > 0 {
+			e.Trend = &halfmark.SeriesTrend{Method: tr.Method, Points: tr.Points, From: tr.From, To: s.Times[len(s.Times)-1],
+				FromMM: tr.FittedFirst, ToMM: tr.FittedLast, SlopePer30dMM: tr.SlopePer30d, CILowMM: tr.CILow, CIHighMM: tr.CIHigh,
+				Significant: tr.Significant}
+		}
+		sv := halfmark.SeriesVerdict{Series: s, Evaluation: e, BackInControl: r.Verdict.Resolved}
+		for _, sg := range r.Signals {
+			sv.Signals = append(sv.Signals, halfmark.SeriesSignal{Family: sg.Family, Rule: sg.Rule, Level: sg.Level,
+				Message: fmt.Sprintf("%s, %s, %s %s (%s, %s): %s", s.MachineName, s.BeamLabel, s.Edge, s.Quantity, s.Geometry, s.Method, sg.Rule)})
+		}
+		ev.Series = append(ev.Series, sv)
 	}
-	m := geometrySize.FindStringSubmatch(s.Geometry)
-	if m == nil {
-		return false
+	for _, c := range res.Components {
+		f := halfmark.Finding{MachineID: machineID, Component: c.Component, Direction: c.Direction, Level: c.Level,
+			MagnitudeMM: c.MagnitudeMM, MagnitudeCIMM: c.MagnitudeCIMM, Onset: c.Onset, Crossing: c.Crossing,
+			Evidence: c.Evidence, Message: c.Message}
+		if len(ss) > 0 {
+			f.Machine = ss[0].MachineName
+		}
+		ev.Components = append(ev.Components, halfmark.ComponentVerdict{Finding: f, Active: c.Active, BackInControl: c.BackInControl})
 	}
-	side := m[1]
-	if e.Axis() == "Y" {
-		side = m[2]
-	}
-	cm, err := strconv.ParseFloat(side, 64)
-	if err != nil {
-		return false
-	}
-	var pos float64
-	switch {
-	case s.BaselineValueMM != nil:
-		pos = *s.BaselineValueMM
-	case len(s.ValuesMM) > 0:
-		pos = s.ValuesMM[0]
-	default:
-		return false
-	}
-	return math.Abs(pos-cm*10/2) > asymmetryMM
-}
-
-func evaluation(s *db.EvalSeries, v drift.Verdict, lim *halfmark.Limits, det *Details, hash string, now time.Time) db.Evaluation {
-	e := db.Evaluation{Series: *s, At: now, ToleranceHash: hash, Level: v.Level, Rule: v.Rule,
-		DeviationMM: v.DeviationMM, LastMeasured: v.LastAt, BackInControl: v.Resolved}
-	e.Series.Times, e.Series.ValuesMM, e.Series.Kinds = nil, nil, nil
-	if lim != nil {
-		e.ToleranceMM, e.ActionMM = &lim.ToleranceMM, &lim.ActionMM
-	}
-	if v.Projected != nil {
-		at := v.Projected.At
-		e.Projected = &at
-	}
-	d := *det
-	d.Verdict = v
-	d.Verdict.Chart.Points = nil
-	e.Details = &d
-	for _, sg := range v.Signals {
-		e.Signals = append(e.Signals, db.AlertSignal{Family: sg.Family, Rule: sg.Rule, Level: sg.Level, Message: message(s, v, lim, sg)})
-	}
-	return e
-}
-
-// message says which machine, beam, edge, how far and how soon.
-func message(s *db.EvalSeries, v drift.Verdict, lim *halfmark.Limits, sg drift.Signal) string {
-	var b strings.Builder
-	fmt.Fprintf(&b, "%s, %s, %s %s (%s): %s", s.MachineName, s.BeamLabel, s.Edge, s.Quantity, s.Geometry, sg.Rule)
-	if v.DeviationMM != nil {
-		fmt.Fprintf(&b, "; newest value %+.2f mm from baseline", *v.DeviationMM)
-	}
-	if lim != nil {
-		fmt.Fprintf(&b, " (tolerance %.2f mm, action %.2f mm)", lim.ToleranceMM, lim.ActionMM)
-	}
-	if v.Projected != nil && sg.Level < halfmark.LevelScheduled {
-		fmt.Fprintf(&b, "; projected to reach the %s on %s", v.Projected.Limit, v.Projected.At.Format("2006-01-02"))
-	}
-	return b.String()
+	return ev, nil
 }

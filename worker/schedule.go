@@ -99,7 +99,7 @@ func (w *Worker) ReloadOnSIGHUP(ctx context.Context) {
 // RunSlot runs job for one scheduled slot unless another worker has
 // claimed it (db.ClaimSlot); ran says whether this worker ran it.
 func (w *Worker) RunSlot(ctx context.Context, job string, slot time.Time, run func(context.Context) (string, error)) (ran bool, err error) {
-	ran, err = w.db.ClaimSlot(ctx, job, slot, w.cfg.WorkerID, run)
+	ran, err = w.store.ClaimSlot(ctx, job, slot, w.cfg.WorkerID, run)
 	if ran && err == nil {
 		w.log.Debug("job done", "job", job, "slot", slot)
 	}

@@ -2,7 +2,7 @@
 // against its baseline and the tolerance book (analysis/drift), the alert
 // lifecycle that follows from it (db), the morning digest and the delivery
 // of queued notifications. Each scheduled tick runs on exactly one worker
-// process, however many are started (db.ClaimSlot).
+// process, however many are started (EvaluationStore.ClaimSlot).
 package worker
 
 import (
@@ -10,12 +10,13 @@ import (
 	"fmt"
 	"log/slog"
 	"os"
+	"sync"
 	"sync/atomic"
 	"time"
 
 	"halfmark"
 	"halfmark/analysis/drift"
-	"halfmark/db"
+	"halfmark/analysis/tolerance"
 )
 
 // Config configures a Worker. Zero fields take the defaults.
@@ -30,17 +31,16 @@ type Config struct {
 	DigestSpec      string // default "0 7 * * *": the Level 1 digest
 	DeliverySpec    string // default "@every 30s": send queued notifications
 
-	Drift drift.Options // chart designs; Now is set per run
 	// Status says when a check is overdue (overdue alerts); zero fields
-	// take db.DefaultStatusOptions, Location the schedule's.
-	Status db.StatusOptions
-	// BatchSize is how many series are read, evaluated and stored together
-	// (default 250).
-	BatchSize int
-
-	// Notification hooks (nil: none). EnqueueAlert runs inside the alert's
-	// transaction for alerts opened or escalated to Level 2 or 3.
-	EnqueueAlert  db.AlertHook
+	// take halfmark.DefaultStatusOptions, Location the schedule's.
+	Status halfmark.StatusOptions
+	// Notifier composes the notifications of findings that open or
+	// escalate to Level 2 or 3; the store writes them in the finding's
+	// transaction (nil: none).
+	Notifier halfmark.FindingNotifier
+	// Penumbra reads penumbra data for the likely cause of a penumbra
+	// finding (nil: no cause is given).
+	Penumbra      halfmark.PenumbraService
 	EnqueueDigest func(ctx context.Context, day time.Time, loc *time.Location) error
 	Deliver       func(ctx context.Context) (int, error)
 
@@ -72,18 +72,15 @@ func (c Config) withDefaults() Config {
 		c.DeliverySpec = "@every 30s"
 	}
 	if c.Status.MorningInterval == 0 {
-		c.Status.MorningInterval = db.DefaultStatusOptions.MorningInterval
-		c.Status.MorningGrace = db.DefaultStatusOptions.MorningGrace
-		c.Status.SkipWeekends = db.DefaultStatusOptions.SkipWeekends
+		c.Status.MorningInterval = halfmark.DefaultStatusOptions.MorningInterval
+		c.Status.MorningGrace = halfmark.DefaultStatusOptions.MorningGrace
+		c.Status.SkipWeekends = halfmark.DefaultStatusOptions.SkipWeekends
 	}
 	if c.Status.MonthlyInterval == 0 {
-		c.Status.MonthlyInterval = db.DefaultStatusOptions.MonthlyInterval
+		c.Status.MonthlyInterval = halfmark.DefaultStatusOptions.MonthlyInterval
 	}
 	if c.Status.Location == nil {
 		c.Status.Location = c.Location
-	}
-	if c.BatchSize <= 0 {
-		c.BatchSize = 250
 	}
 	if c.Now == nil {
 		c.Now = time.Now
@@ -91,26 +88,35 @@ func (c Config) withDefaults() Config {
 	return c
 }
 
-// Worker evaluates series and runs the schedule.
+// Worker evaluates machines and runs the schedule.
 type Worker struct {
-	db   *db.DB
-	cfg  Config
-	log  *slog.Logger
-	book atomic.Pointer[Tolerances]
+	store     halfmark.EvaluationStore
+	cfg       Config
+	log       *slog.Logger
+	book      atomic.Pointer[tolerance.Book]
+	detection atomic.Pointer[drift.Detection]
+	// evalMu keeps one evaluation of this process at a time: a scheduled
+	// run and an evaluation on write never store the same machine at once.
+	evalMu sync.Mutex
 }
 
 // New loads the tolerance book and returns a worker; it does not start the
 // schedule (see Start).
-func New(d *db.DB, cfg Config, log *slog.Logger) (*Worker, error) {
+func New(store halfmark.EvaluationStore, cfg Config, log *slog.Logger) (*Worker, error) {
 	if log == nil {
 		log = slog.Default()
 	}
-	w := &Worker{db: d, cfg: cfg.withDefaults(), log: log}
-	b, err := LoadTolerances(cfg.TolerancesPath)
+	w := &Worker{store: store, cfg: cfg.withDefaults(), log: log}
+	b, err := tolerance.Load(cfg.TolerancesPath)
+	if err != nil {
+		return nil, err
+	}
+	det, err := detectionOf(b)
 	if err != nil {
 		return nil, err
 	}
 	w.book.Store(b)
+	w.detection.Store(&det)
 	if b.IsShippedExample() {
 		log.Warn("no --tolerances file: the shipped example (AAPM TG-142 defaults) is in force; the local physicist should review it", "hash", b.Hash())
 	} else {
@@ -119,17 +125,38 @@ func New(d *db.DB, cfg Config, log *slog.Logger) (*Worker, error) {
 	return w, nil
 }
 
+// detectionOf is the engine's chart design: the shipped defaults with the
+// book's [detection] table over them.
+func detectionOf(b *tolerance.Book) (drift.Detection, error) {
+	d := drift.DefaultDetection()
+	if err := b.DecodeDetection(&d); err != nil {
+		return d, err
+	}
+	if err := d.Validate(); err != nil {
+		return d, fmt.Errorf("tolerances %s: [detection]: %w", b.Source(), err)
+	}
+	return d, nil
+}
+
+// Detection returns the chart design in force.
+func (w *Worker) Detection() drift.Detection { return *w.detection.Load() }
+
 // Tolerances returns the book in force.
 func (w *Worker) Tolerances() halfmark.ToleranceBook { return w.book.Load() }
 
 // Reload re-reads the tolerance file. A bad file is refused (the error
 // names the line) and the book in force stays.
 func (w *Worker) Reload() error {
-	b, err := LoadTolerances(w.cfg.TolerancesPath)
+	b, err := tolerance.Load(w.cfg.TolerancesPath)
+	var det drift.Detection
+	if err == nil {
+		det, err = detectionOf(b)
+	}
 	if err != nil {
 		w.log.Error("tolerance file refused; the previous book stays in force", "err", err, "hash", w.book.Load().Hash())
 		return err
 	}
+	w.detection.Store(&det)
 	old := w.book.Swap(b)
 	w.log.Info("tolerances reloaded", "file", b.Source(), "hash", b.Hash(), "previous_hash", old.Hash())
 	return nil
@@ -142,7 +169,7 @@ func (w *Worker) RunOnce(ctx context.Context) error {
 	if err != nil {
 		return err
 	}
-	w.log.Info("evaluation done", "series", s.Series, "points", s.Points, "level1", s.Levels[1], "level2", s.Levels[2], "level3", s.Levels[3])
+	w.log.Info("evaluation done", "machines", s.Machines, "series", s.Series, "points", s.Points, "findings_level1", s.Findings[1], "findings_level2", s.Findings[2], "findings_level3", s.Findings[3])
 	if w.cfg.Deliver != nil {
 		n, err := w.cfg.Deliver(ctx)
 		if err != nil {

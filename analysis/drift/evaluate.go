@@ -88,6 +88,12 @@ func Evaluate(in Input, o Options) (Verdict, error) {
 	}
 
 	centre, sigma, pending := baseline(x, in.Baseline, o.BaselinePoints)
+	if o.FullBaseline && len(x) < o.BaselinePoints && (in.Baseline.ValueMM == nil || in.Baseline.SigmaMM == nil) {
+		pending = true
+		if in.Baseline.ValueMM == nil {
+			centre = x[0]
+		}
+	}
 	v.BaselinePending = pending
 	v.BaselineDerived = in.Baseline.ValueMM == nil || in.Baseline.SigmaMM == nil
 	v.BaselineMM = centre

@@ -39,14 +39,14 @@ func hasFamily(v Verdict, fam string) bool {
 }
 
 // montgomery91 is the data of Montgomery, Introduction to Statistical
-// Quality Control, Example 9.1 (μ0 = 10, σ = 1; spc.md, data seen in two
-// copies).
+// Quality Control, Example 9.1 (μ0 = 10, σ = 1; data seen in two
+// independent copies).
 var montgomery91 = []float64{9.45, 7.99, 9.29, 11.66, 12.16, 10.18, 8.04, 11.46, 9.20, 10.34,
 	9.03, 11.47, 10.51, 9.40, 10.08, 9.37, 10.62, 10.31, 8.52, 10.84,
 	10.90, 9.33, 12.29, 11.50, 10.60, 11.08, 10.38, 11.62, 11.31, 10.52}
 
 // The tabular CUSUM (k = 0.5, h = 5) first signals at sample 29 with
-// C+ = 5.28 (Montgomery Example 9.1, secondary in spc.md). With a restart
+// C+ = 5.28 (Montgomery Example 9.1, secondary copy). With a restart
 // after sample 29 (an acknowledged signal) sample 30 gives
 // C+ = max(0, 10.52 − 10.5) = 0.02 (derived) and no signal; without it
 // C+ = 5.28 + 0.02 = 5.30 > 5 (derived).
@@ -87,7 +87,7 @@ func TestCUSUMMontgomeryAndRestart(t *testing.T) {
 	}
 }
 
-// NIST/SEMATECH e-Handbook §6.3.2.2 (secondary in spc.md): x̄ = 50.81,
+// NIST/SEMATECH e-Handbook of Statistical Methods §6.3.2.2 (secondary copy): x̄ = 50.81,
 // UCL 55.8041, LCL 45.8159 for these ten values with σ̂ = MR̄/1.128.
 func TestEstimatedBaselineNIST(t *testing.T) {
 	x := []float64{49.6, 47.6, 49.9, 51.3, 47.8, 51.2, 52.6, 52.4, 53.6, 52.1}
@@ -108,7 +108,8 @@ func TestEstimatedBaselineNIST(t *testing.T) {
 }
 
 // Levels follow |d| against the limits with strict inequality (TG-142
-// levels; "beyond" is strict per spc.md conventions).
+// levels; "beyond" is strict: a point on a limit is in control, as in
+// Montgomery's and NIST's worked examples).
 func TestLimitLevels(t *testing.T) {
 	base := Baseline{ValueMM: ptr(50), SigmaMM: ptr(0.5)}
 	lim := Limits{ToleranceMM: 2, ActionMM: 3}

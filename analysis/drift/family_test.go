@@ -6,7 +6,8 @@ import (
 )
 
 // Siegmund's approximation against the two-sided CUSUM run lengths in
-// spc.md (Montgomery's table, k = 0.5 — from memory, recomputed): h = 5
+// Montgomery, Introduction to Statistical Quality Control, two-sided CUSUM
+// ARL table (k = 0.5 — from memory, recomputed): h = 5
 // gives 465, h = 4 gives 168 in control. The two-sided ARL is half the
 // one-sided one for a symmetric design.
 func TestSiegmundMatchesPublishedARL(t *testing.T) {

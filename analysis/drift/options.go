@@ -37,6 +37,9 @@ var DefaultNelsonRules = []int{}
 // takes every default except Now, which the caller must set.
 type Options struct {
 	BaselinePoints int // N for an estimated baseline; 0 means 20
+	// FullBaseline keeps an estimated baseline pending until the period
+	// has BaselinePoints points (false: from spc.MinBaselinePoints on).
+	FullBaseline bool
 
 	// EWMA design: λ and L in sigma. Zero λ means 0.1 and zero L the
 	// ARL-500 width for λ (Lucas & Saccucci 1990; spc.EWMADesignL).

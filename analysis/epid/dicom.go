@@ -37,6 +37,10 @@ type DecodeOptions struct {
 	// MaxBytes bounds the file size and the inflated size of a deflated data
 	// set. Default 256 MiB.
 	MaxBytes int64
+	// CollimatorDeg supplies the collimator (beam limiting device) angle in
+	// degrees, IEC 61217, when BeamLimitingDeviceAngle (300A,0120) is absent,
+	// or overrides it (with a warning when they differ). nil: from the file.
+	CollimatorDeg *float64
 }
 
 const defaultMaxBytes = 256 << 20
@@ -44,6 +48,9 @@ const defaultMaxBytes = 256 << 20
 // DICOM attributes read by DecodeDICOM (PS3.6; numbers in physics.md).
 var (
 	tagRTImagePlane           = tag.Tag{Group: 0x3002, Element: 0x000C}
+	tagReceptorTranslation    = tag.Tag{Group: 0x3002, Element: 0x000D}
+	tagReceptorAngle          = tag.Tag{Group: 0x3002, Element: 0x000E}
+	tagRTImageOrientation     = tag.Tag{Group: 0x3002, Element: 0x0010}
 	tagImagePlanePixelSpacing = tag.Tag{Group: 0x3002, Element: 0x0011}
 	tagRTImagePosition        = tag.Tag{Group: 0x3002, Element: 0x0012}
 	tagRadiationMachineSAD    = tag.Tag{Group: 0x3002, Element: 0x0022}
@@ -61,13 +68,17 @@ var (
 // and ImagePlanePixelSpacing (3002,0011, row spacing first), or from the
 // overrides in o; a missing value gives an error wrapping ErrMissingTag that
 // names each missing attribute (a *TagError per attribute, joined). The
-// central axis comes from RTImagePosition (3002,0012): the x, y position in mm
-// of the first pixel in the RT Image plane, whose origin is on the beam axis
-// and whose y axis points up the image (PS3.3 C.8.8.2, from memory), so
-// AxisCol = -x/ColSpacing and AxisRow = y/RowSpacing. Gantry and collimator
-// angles come from GantryAngle (300A,011E) and BeamLimitingDeviceAngle
-// (300A,0120), at the top level or in the first ExposureSequence (3002,0030)
-// item. PhotometricInterpretation MONOCHROME1 sets Image.Inverted.
+// image is then placed in the beam-limiting-device frame by placeImage: the
+// central axis from RTImagePosition (3002,0012) and
+// XRayImageReceptorTranslation (3002,000D) (PS3.3 C.8.8.2), rows and columns
+// remapped for RTImageOrientation (3002,0010) and the collimator quadrant,
+// so that X1 is on the left and Y2 at the top of Image.Pix; Image.Geometry
+// says what was used. Gantry and collimator angles come from GantryAngle
+// (300A,011E) and BeamLimitingDeviceAngle (300A,0120), at the top level or
+// in the first ExposureSequence (3002,0030) item (o.CollimatorDeg supplies
+// or overrides the latter). PhotometricInterpretation MONOCHROME1 sets
+// Image.Inverted. Geometry that cannot be named with certainty is refused
+// with a *TagError naming the attribute (see placeImage).
 //
 // Compressed, encapsulated, colour and 1-bit images give ErrUnsupported;
 // broken files give ErrNotDICOM. It never panics: the length fields are
@@ -128,6 +139,9 @@ func (o DecodeOptions) validate() error {
 		if f.v < 0 || math.IsNaN(f.v) || math.IsInf(f.v, 0) {
 			return bad(f.name, f.v)
 		}
+	}
+	if c := o.CollimatorDeg; c != nil && (math.IsNaN(*c) || math.IsInf(*c, 0) || math.Abs(*c) > 720) {
+		return fmt.Errorf("%w: DecodeOptions.CollimatorDeg = %g; give the collimator angle in degrees (0 to 360)", ErrInvalidOption, *c)
 	}
 	if o.Frame < 0 {
 		return fmt.Errorf("%w: DecodeOptions.Frame = %d; frames count from 0", ErrInvalidOption, o.Frame)
@@ -230,7 +244,7 @@ func imageFromDataset(ds *dicom.Dataset, syn syntax, o DecodeOptions) (Image, er
 	im.Rows, im.Cols, im.Pix = pf.rows, pf.cols, pix
 
 	// Geometry.
-	geomWarn, err := decodeGeometry(ds, o, &im)
+	geomWarn, imagerPlane, err := decodeGeometry(ds, o, &im)
 	if err != nil {
 		return Image{}, withModality(err, im.Modality)
 	}
@@ -239,10 +253,11 @@ func imageFromDataset(ds *dicom.Dataset, syn syntax, o DecodeOptions) (Image, er
 		warn = append(warn, fmt.Sprintf("Modality is %q, not RTIMAGE", im.Modality))
 	}
 	im.GantryDeg = angle(ds, tagGantryAngle)
-	im.CollimatorDeg = angle(ds, tagBeamLimitingDevAngle)
-	if p := strings.ToUpper(firstString(ds, tagRTImagePlane)); p != "" && p != "NORMAL" {
-		warn = append(warn, fmt.Sprintf("RTImagePlane (3002,000C) is %q: the imager is not normal to the beam; distances are not corrected for tilt", p))
+	placeWarn, err := placeImage(ds, o, &im, imagerPlane, angle(ds, tagBeamLimitingDevAngle))
+	if err != nil {
+		return Image{}, withModality(err, im.Modality)
 	}
+	warn = append(warn, placeWarn...)
 	im.Warnings = warn
 	if err := im.Validate(); err != nil {
 		return Image{}, err
@@ -257,8 +272,10 @@ func withModality(err error, modality string) error {
 	return fmt.Errorf("%w (Modality is %q, not RTIMAGE: this does not look like a portal image)", err, modality)
 }
 
-// decodeGeometry fills the spacings, distances and axis of im.
-func decodeGeometry(ds *dicom.Dataset, o DecodeOptions, im *Image) (warn []string, err error) {
+// decodeGeometry fills the spacings and distances of im. imagerPlane is
+// false when only an isocentre-plane spacing is known (PixelSpacing without
+// SID and SAD), so imager-plane positions cannot be turned into pixels.
+func decodeGeometry(ds *dicom.Dataset, o DecodeOptions, im *Image) (warn []string, imagerPlane bool, err error) {
 	var missing []error
 	distance := func(t tag.Tag, kw, num string, override float64, hint string) float64 {
 		v, ok, err := firstFloat(ds, t)
@@ -317,8 +334,9 @@ func decodeGeometry(ds *dicom.Dataset, o DecodeOptions, im *Image) (warn []strin
 		missing = kept
 	}
 	if len(missing) > 0 {
-		return warn, errors.Join(missing...)
+		return warn, false, errors.Join(missing...)
 	}
+	imagerPlane = true
 	if atIso {
 		if sid > 0 && sad > 0 {
 			rowSp, colSp = rowSp*sid/sad, colSp*sid/sad
@@ -327,21 +345,10 @@ func decodeGeometry(ds *dicom.Dataset, o DecodeOptions, im *Image) (warn []strin
 		}
 	}
 	im.SIDmm, im.SADmm, im.RowSpacingMM, im.ColSpacingMM = sid, sad, rowSp, colSp
-
-	if !o.IgnoreImagePosition {
-		pos, err := floatsN(ds, tagRTImagePosition, 2)
-		if err != nil {
-			warn = append(warn, "RTImagePosition (3002,0012) unreadable ("+err.Error()+"): axis at the image centre")
-		} else if pos != nil && im.RowSpacingMM > 0 && im.ColSpacingMM > 0 {
-			col, row := -pos[0]/im.ColSpacingMM, pos[1]/im.RowSpacingMM
-			if row >= 0 && row <= float64(im.Rows-1) && col >= 0 && col <= float64(im.Cols-1) {
-				im.AxisRow, im.AxisCol, im.HasAxis = row, col, true
-			} else {
-				warn = append(warn, fmt.Sprintf("RTImagePosition (3002,0012) %g, %g mm puts the axis outside the image (row %.1f, column %.1f): axis at the image centre", pos[0], pos[1], row, col))
-			}
-		}
+	if atIso && sid == 0 {
+		imagerPlane = false
 	}
-	return warn, nil
+	return warn, imagerPlane, nil
 }
 
 // rawPixels returns the unprocessed native pixel bytes of the PixelData element.

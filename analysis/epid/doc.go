@@ -16,12 +16,21 @@
 // This follows the IEC 61217 beam-limiting-device axes (from memory): jaw X1
 // on the negative-x side, X2 on the positive-x side, Y1 on the negative-y
 // side, Y2 on the positive-y side (at gantry 0 the +y axis points toward the
-// gantry stand). So X1 is the left side of the image, X2 the right side, Y2
-// the top rows and Y1 the bottom rows. Imagers and export software differ in
-// how they flip and rotate the image; check the convention once on a known
-// asymmetric field (e.g. X1 = 2 cm, X2 = 8 cm) before trusting jaw names.
-// Jaw names are never remapped for the collimator angle: at collimator 90° the
-// "X1" edge is still the left side of the image, and a warning says so.
+// gantry stand). So in an analysed Image X1 is the left side, X2 the right
+// side, Y2 the top rows and Y1 the bottom rows.
+//
+// DecodeDICOM puts a stored RT Image into that frame (see placeImage and
+// frameMap): it reads RTImageOrientation (3002,0010) (axis-aligned flips and
+// rotations are remapped, anything else refused), XRayImageReceptorAngle
+// (3002,000E) (refused beyond 0.1°) and the collimator angle
+// BeamLimitingDeviceAngle (300A,0120), whose quadrant (0, 90, 180, 270°,
+// counter-clockwise seen from the source) turns the image so that the names
+// follow the jaws: at 90° X2 is at the top of the stored image and Y2 on its
+// left, at 180° X1↔X2 and Y1↔Y2. MLC banks and leaf pairs follow the same
+// way. The axis comes from RTImagePosition (3002,0012) and
+// XRayImageReceptorTranslation (3002,000D). Image.Geometry records all of
+// it, and every result copies it as geometry_used. Images built with
+// FromArray are taken as already in that frame.
 //
 // A jaw distance such as x1_mm is the perpendicular distance from the central
 // axis to that edge's 50% line, positive when the edge lies on its own side of

@@ -96,6 +96,9 @@ type FieldResult struct {
 	PixelSizeXMM float64 `json:"pixel_size_x_mm"` // column pitch at the isocentre
 	PixelSizeYMM float64 `json:"pixel_size_y_mm"` // row pitch at the isocentre
 	AxisSource   string  `json:"axis_source"`
+	// Geometry is what the decoder read and used to place the image and
+	// name its edges (nil for images not decoded from DICOM).
+	Geometry *GeometryUsed `json:"geometry_used,omitempty"`
 	// CentralValue and Background are the crossline profile's central value
 	// and background (mean of its lowest 10%), in signal units.
 	CentralValue float64  `json:"central_value"`
@@ -186,6 +189,15 @@ func AnalyzeField(img Image, o FieldOptions) (FieldResult, error) {
 	if err != nil {
 		return FieldResult{}, err
 	}
+	scale := valueScale(img)
+	for _, e := range []struct {
+		axis string
+		pe   profileEdges
+	}{{"X (crossline)", xe}, {"Y (inline)", ye}} {
+		if err := checkContrast(e.pe.central-e.pe.bg, scale, "field", e.axis); err != nil {
+			return FieldResult{}, err
+		}
+	}
 
 	ang, angWarn := edgeAngles(img, s, cx, cy, sx, sy, o, xe.bg, ye.bg)
 	warn = append(warn, angWarn...)
@@ -206,6 +218,7 @@ func AnalyzeField(img Image, o FieldOptions) (FieldResult, error) {
 		PixelSizeXMM:  sx,
 		PixelSizeYMM:  sy,
 		AxisSource:    axisSrc,
+		Geometry:      img.Geometry,
 		CentralValue:  xe.central,
 		Background:    xe.bg,
 	}
@@ -242,14 +255,16 @@ func AnalyzeField(img Image, o FieldOptions) (FieldResult, error) {
 	if hi-lo > 2*o.RotationWarnDeg {
 		warn = append(warn, fmt.Sprintf("field edges are not parallel (edge angles X1 %.2f°, X2 %.2f°, Y1 %.2f°, Y2 %.2f°): a jaw may be tilted, or the field is not rectangular", ang[EdgeX1], ang[EdgeX2], ang[EdgeY1], ang[EdgeY2]))
 	}
-	warn = append(warn, collimatorWarning(img.CollimatorDeg)...)
+	warn = append(warn, collimatorWarning(img)...)
 	res.Warnings = append(append([]string{}, img.Warnings...), warn...)
 	return res, nil
 }
 
-// collimatorWarning warns when the collimator angle tag is not 0°.
-func collimatorWarning(deg *float64) []string {
-	if deg == nil {
+// collimatorWarning warns when an image not placed by DecodeDICOM carries a
+// collimator angle other than 0°: its names are not remapped.
+func collimatorWarning(img Image) []string {
+	deg := img.CollimatorDeg
+	if deg == nil || img.Geometry != nil {
 		return nil
 	}
 	a := math.Mod(*deg, 360)
@@ -260,6 +275,32 @@ func collimatorWarning(deg *float64) []string {
 		return nil
 	}
 	return []string{fmt.Sprintf("collimator angle is %.1f°: edge and bank names follow the image sides at collimator 0 and are not remapped", *deg)}
+}
+
+// MinContrastFraction is the smallest step between background and field
+// (or picket strip) accepted, as a fraction of the signal range: the largest
+// absolute stored value of the image. A real portal field stands out by
+// most of that range; a step of a few counts on a flat image is not a field
+// (common practice: 5% is far below any exposed field and far above
+// rounding).
+const MinContrastFraction = 0.05
+
+// valueScale is the signal range of the image: max |stored value|.
+func valueScale(im Image) float64 {
+	m := 0.0
+	for _, v := range im.Pix {
+		m = math.Max(m, math.Abs(v))
+	}
+	return m
+}
+
+// checkContrast refuses a contrast below MinContrastFraction of scale.
+func checkContrast(contrast, scale float64, what, axis string) error {
+	if contrast >= MinContrastFraction*scale && contrast > 0 {
+		return nil
+	}
+	return fmt.Errorf("%w: no real %s along %s: it stands %.4g above the background, %.2g%% of the signal range %.4g; at least %.0f%% is needed (is the image flat or unexposed?)",
+		ErrNoField, what, axis, contrast, 100*contrast/math.Max(scale, math.SmallestNonzeroFloat64), scale, 100*MinContrastFraction)
 }
 
 // halfBand converts a band width in mm to a half-width in samples.

@@ -130,7 +130,7 @@ func TestFieldImagePositionAxis(t *testing.T) {
 		t.Fatal(err)
 	}
 	checkField(t, r, f, 0.05, 0.05)
-	if r.AxisSource != "RTImagePosition" {
+	if !strings.HasPrefix(r.AxisSource, "RTImagePosition") {
 		t.Errorf("axis_source %q", r.AxisSource)
 	}
 	// Ignoring the position moves the axis to the image centre, 18.5 columns
@@ -333,5 +333,44 @@ func TestFieldJSONKeys(t *testing.T) {
 		if _, ok := pen[e]; !ok {
 			t.Errorf("penumbra_mm lacks %q", e)
 		}
+	}
+}
+
+func TestFieldFlatImageRefused(t *testing.T) {
+	// A flat image with a one-count step (a 12.8 mm block one count above
+	// 1000, no noise) has contrast 0.1% of its signal range: not a field.
+	// The step is analytic (known values), the 5% floor is MinContrastFraction.
+	for _, base := range []float64{1000, 40000} {
+		f := fieldSpec{X1: 6.4, X2: 6.4, Y1: 6.4, Y2: 6.4, Sigma: 0.01, Bg: base, Amp: 1}
+		im := f.image()
+		for i, v := range im.Pix {
+			im.Pix[i] = math.Round(v)
+		}
+		_, err := AnalyzeField(im, FieldOptions{})
+		if !errors.Is(err, ErrNoField) || !strings.Contains(err.Error(), "signal range") {
+			t.Errorf("flat %g with a one-count step: %v, want ErrNoField about the signal range", base, err)
+		}
+		// The same through DICOM, stored as MONOCHROME1: still refused.
+		d := newDCM(im.Pix)
+		d.photometric = "MONOCHROME1"
+		dim, err := decode(t, d.bytes(t), DecodeOptions{})
+		if err != nil {
+			t.Fatal(err)
+		}
+		if _, err := AnalyzeField(dim, FieldOptions{}); !errors.Is(err, ErrNoField) {
+			t.Errorf("flat %g MONOCHROME1: %v, want ErrNoField", base, err)
+		}
+	}
+	// A perfectly flat image: refused too.
+	flat := tenByTen().image()
+	for i := range flat.Pix {
+		flat.Pix[i] = 1000
+	}
+	if _, err := AnalyzeField(flat, FieldOptions{}); !errors.Is(err, ErrNoField) {
+		t.Errorf("flat image: %v, want ErrNoField", err)
+	}
+	// A real field with a 5% transmission floor is kept (contrast 95%).
+	if _, err := AnalyzeField(fieldSpec{X1: 50, X2: 50, Y1: 50, Y2: 50, Sigma: 1.5, Bg: 1500, Amp: 28500}.image(), FieldOptions{}); err != nil {
+		t.Errorf("real field: %v", err)
 	}
 }

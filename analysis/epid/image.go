@@ -25,6 +25,13 @@ type Image struct {
 	// true; otherwise the axis is the image centre ((Rows-1)/2, (Cols-1)/2).
 	AxisRow, AxisCol float64
 	HasAxis          bool
+	// AxisSource says where the axis came from (set by DecodeDICOM).
+	AxisSource string
+	// Geometry records how DecodeDICOM placed the image (nil for images
+	// built otherwise). When set, Pix is already in the analysed frame: X1
+	// on the left, X2 on the right, Y2 at the top, for the collimator
+	// quadrant it names.
+	Geometry *GeometryUsed
 
 	GantryDeg     *float64 // GantryAngle (300A,011E), degrees; nil when unknown
 	CollimatorDeg *float64 // BeamLimitingDeviceAngle (300A,0120), degrees; nil when unknown
@@ -115,7 +122,11 @@ func (im Image) PixelSizeIsoMM() (x, y float64) {
 // description of where they came from.
 func (im Image) Axis() (row, col float64, source string) {
 	if im.HasAxis {
-		return im.AxisRow, im.AxisCol, "RTImagePosition"
+		src := im.AxisSource
+		if src == "" {
+			src = "RTImagePosition"
+		}
+		return im.AxisRow, im.AxisCol, src
 	}
 	return float64(im.Rows-1) / 2, float64(im.Cols-1) / 2, "image centre"
 }

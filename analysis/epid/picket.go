@@ -102,6 +102,7 @@ type PicketResult struct {
 	PixelSizeXMM     float64         `json:"pixel_size_x_mm"`
 	PixelSizeYMM     float64         `json:"pixel_size_y_mm"`
 	AxisSource       string          `json:"axis_source"`
+	Geometry         *GeometryUsed   `json:"geometry_used,omitempty"`
 	Warnings         []string        `json:"warnings"`
 }
 
@@ -142,7 +143,8 @@ type strip struct {
 // 23:635, 1996 — from memory).
 // A bank edge whose |residual| (or |error| with UseError) exceeds ToleranceMM
 // is listed in Exceeding. Pairs whose strip is weaker than half the picket's
-// median strip, or not above 10× the profile noise, count as not exposed.
+// median strip, not above 10× the profile noise, or below MinContrastFraction
+// of the signal range count as not exposed.
 func AnalyzePicketFence(img Image, o PicketOptions) (PicketResult, error) {
 	if err := img.Validate(); err != nil {
 		return PicketResult{}, err
@@ -206,6 +208,7 @@ func AnalyzePicketFence(img Image, o PicketOptions) (PicketResult, error) {
 	yOf := make([]float64, nPairs)
 	scratch := make([]float64, 0, img.Cols)
 	notImaged := []int{}
+	minAmp := MinContrastFraction * valueScale(img)
 	for i := range nPairs {
 		yc, w := o.Layout.PairCentreMM(i)
 		yOf[i] = yc
@@ -226,7 +229,7 @@ func AnalyzePicketFence(img Image, o PicketOptions) (PicketResult, error) {
 		noise := noiseSD(prof, scratch)
 		meas[i] = make([]strip, nPk)
 		for j, xn := range nominal {
-			if st := findStrip(prof, ac+xn/sx, halfWin/sx); st.ok && st.amp > 10*noise {
+			if st := findStrip(prof, ac+xn/sx, halfWin/sx); st.ok && st.amp > 10*noise && st.amp >= minAmp {
 				meas[i][j] = st
 			}
 		}
@@ -281,6 +284,7 @@ func AnalyzePicketFence(img Image, o PicketOptions) (PicketResult, error) {
 		PixelSizeXMM:    sx,
 		PixelSizeYMM:    sy,
 		AxisSource:      axisSrc,
+		Geometry:        img.Geometry,
 		PairsNotImaged:  notImaged,
 		PairsNotExposed: []int{},
 		Leaves:          []LeafResult{},
@@ -413,7 +417,7 @@ func AnalyzePicketFence(img Image, o PicketOptions) (PicketResult, error) {
 	if len(notImaged) > 0 {
 		warn = append(warn, fmt.Sprintf("%d leaf pair(s) of layout %q lie outside the image", len(notImaged), o.Layout.Name))
 	}
-	warn = append(warn, collimatorWarning(img.CollimatorDeg)...)
+	warn = append(warn, collimatorWarning(img)...)
 	res.Warnings = append(append([]string{}, img.Warnings...), warn...)
 	return res, nil
 }
@@ -468,6 +472,9 @@ func findPickets(im Image, s signal, sx, ac float64) ([]float64, error) {
 	noise := noiseSD(colMean, nil)
 	if !(top-bg > 10*noise) {
 		return nil, fmt.Errorf("%w: no picket strips: contrast %.4g is not above 10× the noise %.4g", ErrNoField, top-bg, noise)
+	}
+	if err := checkContrast(top-bg, valueScale(im), "picket strip", "the image columns"); err != nil {
+		return nil, err
 	}
 	level := (bg + top) / 2
 	var out []float64

@@ -291,3 +291,20 @@ func TestPicketJSON(t *testing.T) {
 		t.Errorf("exceeding should be an empty array, got %v", m["exceeding"])
 	}
 }
+
+func TestPicketFlatImageRefused(t *testing.T) {
+	// Strips one count high on a flat 1000 (0.1% of the signal range): no
+	// picket fence, with or without nominal positions.
+	p := basePicket()
+	p.Bg, p.Amp = 1000, 1
+	im := p.image()
+	for i, v := range im.Pix {
+		im.Pix[i] = math.Round(v)
+	}
+	if _, err := AnalyzePicketFence(im, basePicketOpts); !errors.Is(err, ErrNoField) {
+		t.Errorf("one-count strips with nominal positions: %v, want ErrNoField", err)
+	}
+	if _, err := AnalyzePicketFence(im, PicketOptions{Layout: Layout60}); !errors.Is(err, ErrNoField) {
+		t.Errorf("one-count strips found automatically: %v, want ErrNoField", err)
+	}
+}

@@ -159,6 +159,9 @@ func Analyze(samples []Sample, opt Options) (Result, error) {
 	if err != nil {
 		return Result{}, err
 	}
+	if err := c.checkTwoEdges(half); err != nil {
+		return Result{}, err
+	}
 	fff, detected := false, false
 	if opt.FFF != nil {
 		fff = *opt.FFF
@@ -246,6 +249,60 @@ func (c *curve) halfEdges(useMax bool, warnings *[]string) (halfMax, error) {
 			return h, nil
 		}
 	}
+}
+
+// minFieldSamples is the fewest samples between the two 50% points, and
+// minTailSamples the fewest consecutive samples below 50% just outside each
+// of them, for the profile to show a field with two edges rather than a
+// spike or a one-sample dip (common practice: an edge is a sustained fall).
+const (
+	minFieldSamples = 2
+	minTailSamples  = 2
+)
+
+// checkTwoEdges refuses a profile whose 50% points do not bound a field:
+// fewer than minFieldSamples samples between them, or a side where the
+// signal does not stay below 50% for minTailSamples samples beyond the
+// crossing (a single low sample, or the scan's last sample).
+func (c *curve) checkTwoEdges(h halfMax) error {
+	level := 0.5 * h.norm
+	inside := 0
+	for _, x := range c.x {
+		if x > h.left && x < h.right {
+			inside++
+		}
+	}
+	if inside < minFieldSamples {
+		return fmt.Errorf("%w: only %d sample(s) lie between the 50%% points at %g and %g mm: a spike, not a field; scan across the whole field", ErrNoField, inside, h.left, h.right)
+	}
+	tail := func(edge float64, dir int) error {
+		i := 0
+		if dir < 0 {
+			i = len(c.x) - 1
+			for i >= 0 && c.x[i] >= edge {
+				i--
+			}
+		} else {
+			for i < len(c.x) && c.x[i] <= edge {
+				i++
+			}
+		}
+		side := map[int]string{-1: "left", 1: "right"}[dir]
+		for k := 0; k < minTailSamples; k++ {
+			j := i + dir*k
+			if j < 0 || j >= len(c.x) {
+				return fmt.Errorf("%w: the %s edge at %g mm is the end of the scan: the signal must stay below 50%% for at least %d samples beyond an edge; extend the scan past the field", ErrNoField, side, edge, minTailSamples)
+			}
+			if c.y[j] >= level {
+				return fmt.Errorf("%w: on the %s the signal dips below 50%% at %g mm but is back to %.4g (above %.4g) at %g mm: a dip, not a field edge; check the profile for dropouts", ErrNoField, side, edge, c.y[j], level, c.x[j])
+			}
+		}
+		return nil
+	}
+	if err := tail(h.left, -1); err != nil {
+		return err
+	}
+	return tail(h.right, 1)
 }
 
 // noCrossing is the error for a level that the profile, followed outward

@@ -11,11 +11,11 @@ import (
 )
 
 // z80 = Φ⁻¹(0.8): the 80% and 20% points of an error-function edge sit
-// z80·σ inside and outside the edge (physics.md, derived).
+// z80·σ inside and outside the edge (derived: Φ(z80) = 0.8).
 var z80 = phiInv(0.8)
 
 func TestErfPenumbraConstant(t *testing.T) {
-	// physics.md (derived): the 80–20 width of an error-function edge is
+	// Derived from Φ⁻¹(0.8) = 0.8416: the 80–20 width of an error-function edge is
 	// 2·0.8416·σ = 1.6832·σ.
 	if got := 2 * z80; !near(got, 1.6832, 1e-4) {
 		t.Fatalf("2·Φ⁻¹(0.8) = %.6f, want 1.6832", got)
@@ -23,7 +23,7 @@ func TestErfPenumbraConstant(t *testing.T) {
 }
 
 // TestErfEdges checks edges, field size, centre and penumbra against
-// error-function fields of known σ (physics.md, derived: 50% point at the
+// error-function fields of known σ (derived: 50% point at the
 // geometric edge, 80–20 = 1.6832·σ), at 0.5 mm sampling within 0.05 mm
 // (the brief's accuracy target), for symmetric, shifted and asymmetric
 // fields.
@@ -72,7 +72,7 @@ func checkErf(t *testing.T, f erfField, r Result, tol float64) {
 }
 
 // TestLinearRamp: straight-line edges of width w have their 50% point at the
-// centre of the ramp and 80–20 = 0.6·w (physics.md, derived); linear
+// centre of the ramp and 80–20 = 0.6·w (derived); linear
 // interpolation reproduces them exactly.
 func TestLinearRamp(t *testing.T) {
 	for _, f := range []rampField{{-50, 50, 6}, {-37.3, 61.9, 4}, {-80, 20, 10}} {
@@ -98,7 +98,7 @@ func TestLinearRamp(t *testing.T) {
 }
 
 // TestUnsortedNonUniform: random spacing 0.2–0.8 mm, shuffled, gives the
-// analytic edges (physics.md) within 0.05 mm, and exactly the result of the
+// analytic edges (derived) within 0.05 mm, and exactly the result of the
 // same samples sorted.
 func TestUnsortedNonUniform(t *testing.T) {
 	rng := rand.New(rand.NewPCG(1, 2))
@@ -243,7 +243,7 @@ func TestConflictingRepeats(t *testing.T) {
 // TestCAXNormalisationIterated: on a wedged field D(x) = erfField·(1 + s·x)
 // the converged result must be self-consistent on the analytic profile:
 // D(left) = D(right) = D(centre)/2 with centre the mean of the edges (the
-// definition of 50% of CAX, physics.md).
+// definition of 50% of CAX: IEC 60976 — from memory; common practice).
 func TestCAXNormalisationIterated(t *testing.T) {
 	base := erfField{-40, 60, 2, 2}
 	d := func(x float64) float64 { return base.at(x) * (1 + 0.004*x) }
@@ -308,7 +308,7 @@ func bisect(fn func(float64) float64, a, b float64) float64 {
 }
 
 // TestCubicAtCoarseSampling: at 1 mm sampling both interpolations stay
-// within 0.1 mm of the analytic erf edges (physics.md, derived).
+// within 0.1 mm of the analytic erf edges (derived).
 func TestCubicAtCoarseSampling(t *testing.T) {
 	f := erfField{-50.3, 49.6, 2, 2}
 	for _, in := range []string{InterpLinear, InterpCubic} {

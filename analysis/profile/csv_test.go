@@ -105,7 +105,7 @@ func (r *rowReader) Read(p []byte) (int, error) {
 }
 
 // TestParseCSVThenAnalyze: a profile written as text and read back gives the
-// analytic edges (physics.md, derived).
+// analytic edges (derived: 50 % at the geometric edge, 80–20 = 1.6832·σ).
 func TestParseCSVThenAnalyze(t *testing.T) {
 	f := erfField{-50, 50, 2, 2}
 	var b strings.Builder

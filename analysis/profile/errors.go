@@ -20,6 +20,9 @@ var (
 	ErrConflictingRepeats = errors.New("profile: repeated positions disagree")
 	// ErrNoCrossing: the profile never falls through a level on one side.
 	ErrNoCrossing = errors.New("profile: level not crossed")
+	// ErrNoField: the profile does not show a field with two edges (a
+	// spike, a one-sample dip, or an edge at the end of the scan).
+	ErrNoField = errors.New("profile: no field with two edges")
 	// ErrFit: the Hill fit of an FFF edge failed or gave an implausible edge.
 	ErrFit = errors.New("profile: edge fit failed")
 	// ErrOptions: an Options field has an unknown value.

@@ -10,8 +10,10 @@ import (
 const (
 	// fffMinUnflatness: a profile is peaked when D(c)/D(c ± 0.4·F) reaches
 	// this on both sides. Flattened beams stay near 1.00 (horns push it
-	// below); 6 MV FFF 10×10 cm is about 1.11 (Clivio et al. 2014 reference
-	// level, physics.md).
+	// below); 6 MV FFF 10×10 cm is about 1.11 (Clivio et al., "On the
+	// determination of reference levels for quality assurance of flattening
+	// filter free photon beams in radiotherapy", Med Phys 41:021713, 2014 —
+	// value seen, authors and volume from memory).
 	fffMinUnflatness = 1.05
 	// fffMinFieldMM: below this 50% field size the penumbra itself lowers
 	// D(c ± 0.4·F), so a peaked profile is not called FFF automatically.
@@ -31,7 +33,7 @@ const (
 )
 
 // FFFResult holds the flattening-filter-free parameters (Fogliata et al., Med
-// Phys 39:6455, 2012 — method from memory; physics.md). Percentages are of
+// Phys 39:6455, 2012 — method from memory). Percentages are of
 // the normalisation signal unless marked renormalised.
 type FFFResult struct {
 	// Detected is true when the peakedness test chose the FFF analysis and

@@ -16,7 +16,7 @@ import (
 //
 //	D(x) = Hill_side(u) + peak·(1 − (u/radius)²)²  (u < radius)
 //
-// so each inflection point is the Hill inflection (physics.md, derived).
+// so each inflection point is the Hill inflection (derived from the Hill function's second derivative).
 type fffField struct {
 	centre       float64
 	left, right  Hill
@@ -58,8 +58,10 @@ var testFFF = fffField{
 // TestFFFRecoversInflection: the synthetic FFF profile is detected as FFF
 // and its edges are the Hill inflection points within 0.1 mm (the brief's
 // target); the renormalised 80%/20% points are where the true Hill edge
-// reaches 1.6× and 0.4× its inflection value (Fogliata et al. 2012, from
-// memory; physics.md).
+// reaches 1.6× and 0.4× its inflection value (Fogliata et al., "Definition
+// of parameters for quality assurance of flattening filter free (FFF)
+// photon beams in radiation therapy", Med Phys 39:6455, 2012 — method
+// from memory, secondary copy of the 1.6×/0.4× levels).
 func TestFFFRecoversInflection(t *testing.T) {
 	f := testFFF
 	for _, in := range []string{InterpLinear, InterpCubic} {
@@ -90,8 +92,8 @@ func TestFFFRecoversInflection(t *testing.T) {
 				t.Errorf("%s %s: 80%%/20%% at %.4f, %.4f, want %.4f, %.4f ± 0.1", in, side.name, side.p80, side.p20, want80, want20)
 			}
 		}
-		// Unflatness D(c)/D(c ± 0.4F) from the analytic profile (physics.md
-		// definition, from memory).
+		// Unflatness D(c)/D(c ± 0.4F) from the analytic profile (Fogliata et al.,
+		// Med Phys 39:6455, 2012 — definition from memory).
 		c, fs := (wantL+wantR)/2, wantR-wantL
 		if u := f.at(c) / f.at(c-0.4*fs); !near(r.FFF.UnflatnessLeft, u, 1e-3) {
 			t.Errorf("%s: left unflatness %.5f, want %.5f", in, r.FFF.UnflatnessLeft, u)
@@ -198,7 +200,7 @@ func TestFFFDetection(t *testing.T) {
 func TestFFFErrors(t *testing.T) {
 	yes := true
 	f := erfField{-50, 50, 2, 2}
-	xs := append(grid(-90, 0, 0.5), 30, 48, 70)
+	xs := append(grid(-90, 0, 0.5), 30, 48, 70, 80)
 	_, err := Analyze(sampleAt(f.at, xs, 1, 0, nil), Options{FFF: &yes})
 	if !errors.Is(err, ErrFit) || !strings.Contains(err.Error(), "right edge") || !strings.Contains(err.Error(), "sample the penumbra more finely") {
 		t.Fatalf("got %v, want ErrFit about the right edge", err)

@@ -6,8 +6,9 @@ import (
 	"testing"
 )
 
-// TestFlattenedMargin: IEC 60976 flattened-region margins (physics.md, from
-// memory): 5–10 cm → 1 cm; 10–30 cm → 0.1·F; > 30 cm → 3 cm; diagonals
+// TestFlattenedMargin: IEC 60976 flattened-region margins (IEC 60976,
+// Medical electrical equipment — Medical electron accelerators —
+// Functional performance characteristics — from memory): 5–10 cm → 1 cm; 10–30 cm → 0.1·F; > 30 cm → 3 cm; diagonals
 // doubled; below 5 cm undefined (central 80% used).
 func TestFlattenedMargin(t *testing.T) {
 	cases := []struct {
@@ -36,8 +37,8 @@ func TestFlattenedMargin(t *testing.T) {
 
 // TestFlatnessSymmetryTilted: a field tilted by a straight line inside the
 // flattened region has its extremes at the region ends, so each form follows
-// from the analytic profile at those ends (definitions: physics.md, IEC 60976
-// from memory and common practice); the area form is −50·a·h/(1 + a·δ) for
+// from the analytic profile at those ends (definitions: IEC 60976
+// from memory, and common practice); the area form is −50·a·h/(1 + a·δ) for
 // D = 1 + a·(x − x0), δ = centre − x0 (derived by integrating the line).
 func TestFlatnessSymmetryTilted(t *testing.T) {
 	const a = 0.0005 // per mm

@@ -18,7 +18,7 @@ func phiInv(p float64) float64 { return math.Sqrt2 * math.Erfinv(2*p-1) }
 //	D(x) = Φ((x − L)/σL) − Φ((x − R)/σR)
 //
 // Its 50% points sit at L and R and its 80–20 width is 2·Φ⁻¹(0.8)·σ
-// (physics.md, derived) as long as R − L ≫ σ.
+// (derived: Φ⁻¹(0.8) = 0.8416) as long as R − L ≫ σ.
 type erfField struct{ left, right, sigmaL, sigmaR float64 }
 
 func (f erfField) at(x float64) float64 {
@@ -27,7 +27,7 @@ func (f erfField) at(x float64) float64 {
 
 // rampField has linear edges of width w centred on left and right: 0 → 1
 // from L − w/2 to L + w/2. Its 50% points are L and R and its 80–20 width is
-// 0.6·w (physics.md, derived).
+// 0.6·w (derived: 80 % and 20 % lie 0.3·w either side of the middle).
 type rampField struct{ left, right, w float64 }
 
 func (f rampField) at(x float64) float64 {

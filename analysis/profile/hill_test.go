@@ -10,7 +10,8 @@ import (
 	"gonum.org/v1/gonum/diff/fd"
 )
 
-// TestHillInflectionVector: physics.md (derived) test vector A = 0, B = 100,
+// TestHillInflectionVector: test vector derived from the zero of the second
+// derivative at x_i, A = 0, B = 100,
 // C = 50 mm, D = 20 → x_i = 49.7504 mm, f(x_i) = 47.5.
 func TestHillInflectionVector(t *testing.T) {
 	x, f := Hill{A: 0, B: 100, C: 50, D: 20}.Inflection()

@@ -19,7 +19,7 @@ import (
 
 // Version identifies the analysis code. Bump it whenever a change can move
 // a computed edge; stored checks record it so they can be recomputed.
-const Version = "2026.12-1"
+const Version = "2026.12-2"
 
 // ProfileParams choose how a 1-D profile is analysed. Axis says which jaws
 // the profile crosses: "X" (crossline: the profile's low side is X1) or
@@ -38,6 +38,10 @@ type ImageParams struct {
 	SIDmm   float64 `json:"sid_mm,omitempty"`   // source-to-imager distance, overrides RTImageSID
 	SADmm   float64 `json:"sad_mm,omitempty"`   // source-to-axis distance, overrides RadiationMachineSAD
 	PixelMM float64 `json:"pixel_mm,omitempty"` // imager-plane pixel pitch, overrides ImagePlanePixelSpacing
+	// CollimatorDeg is the collimator angle in degrees (IEC 61217) when the
+	// file lacks BeamLimitingDeviceAngle (300A,0120), or to override it. It
+	// decides which image side is X1, X2, Y1, Y2 (and the MLC banks).
+	CollimatorDeg *float64 `json:"collimator_deg,omitempty"`
 }
 
 // PicketParams choose how a picket-fence image is analysed.
@@ -69,14 +73,17 @@ func Profile(data []byte, p ProfileParams) (profile.Result, error) {
 }
 
 func (p ImageParams) decode() epid.DecodeOptions {
-	o := epid.DecodeOptions{SIDmm: p.SIDmm, SADmm: p.SADmm}
+	o := epid.DecodeOptions{SIDmm: p.SIDmm, SADmm: p.SADmm, CollimatorDeg: p.CollimatorDeg}
 	if p.PixelMM > 0 {
 		o.PixelSpacingMM = [2]float64{p.PixelMM, p.PixelMM}
 	}
 	return o
 }
 
-// Image decodes an RT Image and measures its jaw-defined field.
+// Image decodes an RT Image and measures its jaw-defined field. The result
+// carries "geometry_used" (epid.GeometryUsed): the axis source, imager
+// translation, orientation and collimator angle the names rest on, and
+// "warnings" (a missing collimator angle among them).
 func Image(data []byte, p ImageParams) (epid.FieldResult, error) {
 	img, err := epid.DecodeDICOMBytes(data, p.decode())
 	if err != nil {

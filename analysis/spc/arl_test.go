@@ -35,7 +35,7 @@ func runLengths(m int, seed uint64, next func() func(float64) bool) (mean, se fl
 // published design values (L = 2.814 to three decimals moves the ARL by
 // about 0.5 %; the CUSUM ARL 465 is printed to three figures).
 //
-// Published values (from memory, spc.md): EWMA λ = 0.1, L = 2.814 with
+// Published values (from memory): EWMA λ = 0.1, L = 2.814 with
 // steady-state limits, ARL 500 (Lucas & Saccucci, Technometrics 32(1),
 // 1990); two-sided CUSUM k = 0.5, h = 5, ARL 465 (Montgomery, Introduction to
 // Statistical Quality Control, Table 9.3).

@@ -6,7 +6,7 @@ import (
 	"testing"
 )
 
-// The NIST §6.3.2.2 individuals data (spc.md): x̄ = 50.81, MR̄ = 1.8778, so
+// The NIST/SEMATECH e-Handbook §6.3.2.2 individuals data (secondary copy): x̄ = 50.81, MR̄ = 1.8778, so
 // σ̂ = MR̄/1.128 = 1.6647 (computed from the published MR̄ and table d2).
 // Later points must not influence a baseline of the first 10.
 func TestEstimateBaseline(t *testing.T) {

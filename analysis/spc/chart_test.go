@@ -39,7 +39,7 @@ func num(t *testing.T, m map[string]any, key string) float64 {
 	return v
 }
 
-// I-MR on the NIST data (spc.md): centre 50.81, UCL 55.8041, LCL 45.8159,
+// I-MR on the NIST/SEMATECH e-Handbook §6.3.2.2 data (secondary copy): centre 50.81, UCL 55.8041, LCL 45.8159,
 // in control; point 1 has no moving range, point 2's is 2.0.
 func TestRunIMR(t *testing.T) {
 	x := []float64{49.6, 47.6, 49.9, 51.3, 47.8, 51.2, 52.6, 52.4, 53.6, 52.1}
@@ -64,7 +64,8 @@ func TestRunIMR(t *testing.T) {
 	near(t, "mr 2", num(t, p2, "mr"), 2.0, 1e-9)
 }
 
-// EWMA and CUSUM on Montgomery's data (spc.md): both first signal at sample
+// EWMA and CUSUM on Montgomery's Example 9.1 data (Introduction to
+// Statistical Quality Control): both first signal at sample
 // 29. EWMA top-level limits are the steady ones (10.6194 / 9.3806); each
 // point carries its time-varying limits. The CUSUM signal point carries N+ = 7
 // and the new-mean estimate 11.25.

@@ -37,22 +37,6 @@ var subgroupTable = [...]SubgroupConstants{
 	{N: 10, A2: 0.308, RangeMean: 3.078, RangeSD: 0.797, D3: 0.223, D4: 1.777},
 }
 
-// MinSubgroup and MaxSubgroup bound the subgroup sizes the constants table
-// covers.
-const (
-	MinSubgroup = 2
-	MaxSubgroup = 10
-)
-
-// Constants returns the table constants for subgroups of n values,
-// 2 ≤ n ≤ 10.
-func Constants(n int) (SubgroupConstants, error) {
-	if n < MinSubgroup || n > MaxSubgroup {
-		return SubgroupConstants{}, fmt.Errorf("spc: subgroup size %d is outside the constants table (%d to %d); regroup the data", n, MinSubgroup, MaxSubgroup)
-	}
-	return subgroupTable[n-MinSubgroup], nil
-}
-
 // Exact constants for a moving range of two (n = 2). The range of two
 // independent N(0, σ²) values is |X1 − X2| with X1 − X2 ~ N(0, 2σ²), so
 //

@@ -77,12 +77,6 @@ func NewCUSUMChart(o CUSUMOptions) (*CUSUMChart, error) {
 	return &CUSUMChart{mu0: o.Target, k: k, h: h, kk: k * o.Sigma, hh: h * o.Sigma, reset: o.ResetAfterSignal}, nil
 }
 
-// K returns the reference value in sigma (default filled in).
-func (c *CUSUMChart) K() float64 { return c.k }
-
-// H returns the decision interval in sigma.
-func (c *CUSUMChart) H() float64 { return c.h }
-
 // DecisionInterval returns H·σ in the unit of the values.
 func (c *CUSUMChart) DecisionInterval() float64 { return c.hh }
 

@@ -5,7 +5,8 @@ import (
 	"testing"
 )
 
-// Montgomery Example 9.1 (data seen in two copies; C+ secondary; spc.md):
+// Montgomery, Introduction to Statistical Quality Control, Example 9.1
+// (data seen in two independent copies; C+ from a secondary copy):
 // μ0 = 10, σ = 1, k = 0.5, h = 5. Convention: the CUSUM keeps accumulating
 // after a signal (the textbook's). The data have two decimals and K = 0.5,
 // so the printed C+ values are exact; the tolerance only absorbs floating

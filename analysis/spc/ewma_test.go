@@ -7,12 +7,13 @@ import (
 
 // montgomeryData is the series of Montgomery, Introduction to Statistical
 // Quality Control, Examples 9.1 and 9.2 (μ0 = 10, σ = 1; a 1σ shift after
-// sample 20). Data seen in two independent copies (spc.md).
+// sample 20). Data seen in two independent copies.
 var montgomeryData = []float64{9.45, 7.99, 9.29, 11.66, 12.16, 10.18, 8.04, 11.46, 9.20, 10.34,
 	9.03, 11.47, 10.51, 9.40, 10.08, 9.37, 10.62, 10.31, 8.52, 10.84,
 	10.90, 9.33, 12.29, 11.50, 10.60, 11.08, 10.38, 11.62, 11.31, 10.52}
 
-// NIST/SEMATECH e-Handbook §6.3.2.4 EWMA example (secondary, spc.md):
+// NIST/SEMATECH e-Handbook of Statistical Methods §6.3.2.4 EWMA example
+// (secondary copy):
 // λ = 0.3, target 50, s = 2.0539, L = 3. Convention: steady-state limits.
 // z is printed to 2 decimals and the limits to 4 (tolerance half a unit;
 // LCL 47.4115 is NIST's rounding of 47.41156, hence 0.0001 there).
@@ -38,9 +39,9 @@ func TestEWMANIST(t *testing.T) {
 	}
 }
 
-// Montgomery Example 9.2 (seen in a vendor manual citing it; spc.md):
+// Montgomery Example 9.2 (seen in a third-party manual citing it):
 // λ = 0.1, L = 2.7, μ0 = 10, σ = 1: z1 = 9.945, z2 = 9.7495, steady limits
-// 10.6194 / 9.3806. spc.md computes the first signal with time-varying limits
+// 10.6194 / 9.3806. Recomputed: the first signal with time-varying limits is
 // at sample 29; the test recomputes the chart from the published formulas
 // (z_i = λx_i + (1 − λ)z_(i−1), half-width L·σ·sqrt(λ/(2 − λ)·(1 − (1 − λ)^(2i))))
 // in a plain loop and checks that EWMA agrees and that the signal is at 29.
@@ -68,7 +69,7 @@ func TestEWMAMontgomery(t *testing.T) {
 		}
 	}
 	if first != 28 || r.FirstSignal != 28 {
-		t.Errorf("first signal: recomputed sample %d, EWMA sample %d; spc.md gives 29", first+1, r.FirstSignal+1)
+		t.Errorf("first signal: recomputed sample %d, EWMA sample %d; recomputed from Montgomery's data: 29", first+1, r.FirstSignal+1)
 	}
 	// The time-varying limits approach the steady ones from inside.
 	if !(r.UCL[0] < r.UCL[29] && r.UCL[29] < r.SteadyUCL) {
@@ -82,7 +83,7 @@ func TestEWMADefaults(t *testing.T) {
 		t.Fatal(err)
 	}
 	if r.Lambda != 0.1 || r.L != 2.814 {
-		t.Errorf("default design λ=%v L=%v, want 0.1, 2.814 (spc.md ARL-500 pair)", r.Lambda, r.L)
+		t.Errorf("default design λ=%v L=%v, want 0.1, 2.814 (Lucas & Saccucci 1990 ARL-500 pair, from memory)", r.Lambda, r.L)
 	}
 	r, err = EWMA([]float64{0}, EWMAOptions{Sigma: 1, Lambda: 0.2})
 	if err != nil || r.L != 2.962 {

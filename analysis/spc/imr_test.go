@@ -15,8 +15,8 @@ func near(t *testing.T, what string, got, want, tol float64) {
 
 func ptr(v float64) *float64 { return &v }
 
-// NIST/SEMATECH e-Handbook §6.3.2.2 individuals example (quoted in spc.md,
-// secondary). Convention: table constants (UCL 55.8041 = x̄ + 3·MR̄/1.128;
+// NIST/SEMATECH e-Handbook of Statistical Methods §6.3.2.2 individuals
+// example (secondary copy). Convention: table constants (UCL 55.8041 = x̄ + 3·MR̄/1.128;
 // exact d2 would give 55.8024). Published values are rounded to the digits
 // shown, so the tolerance is half a unit of the last digit.
 func TestIMRNIST(t *testing.T) {
@@ -46,10 +46,10 @@ func TestIMRNIST(t *testing.T) {
 	}
 }
 
-// SAS/QC "Tires" individuals example (seen; spc.md). SAS uses exact d2 and
+// SAS/QC User's Guide, IRCHART "Tires" individuals example (seen). SAS uses exact d2 and
 // d3: LCL 23.8571, mean 24.0083, UCL 24.1596, MR̄ 0.056897, MR UCL 0.18585.
 // With table constants the limits are 24.1597 / 23.8570 and MR UCL 0.18588
-// (computed in spc.md). Tolerance: half a unit of the last printed digit.
+// (computed from the published data). Tolerance: half a unit of the last printed digit.
 func TestIMRTires(t *testing.T) {
 	x := []float64{24.05, 23.99, 23.95, 23.93, 23.97, 24.02, 24.06, 24.10, 23.98, 24.03,
 		23.91, 24.06, 24.06, 23.96, 23.98, 24.06, 24.01, 24.00, 23.93, 23.92,
@@ -76,7 +76,8 @@ func TestIMRTires(t *testing.T) {
 	}
 }
 
-// "Beyond" is strict (spc.md conventions): with known centre 0 and sigma 1
+// "Beyond" is strict (a point on a limit is in control, as in the worked
+// examples): with known centre 0 and sigma 1
 // the limits are exactly ±3, so ±3 is in control and the next float out is
 // not.
 func TestIMRStrictLimits(t *testing.T) {

@@ -35,18 +35,6 @@ func RuleDescription(r int) string {
 	return nelsonRules[r]
 }
 
-// RulesFromMask turns a bit mask (bit 0 = rule 1 … bit 7 = rule 8) into a
-// list of rule numbers, e.g. 0b1 → [1], 0xFF → all eight.
-func RulesFromMask(mask uint8) []int {
-	var rules []int
-	for r := 1; r <= 8; r++ {
-		if mask&(1<<(r-1)) != 0 {
-			rules = append(rules, r)
-		}
-	}
-	return rules
-}
-
 // Nelson applies the Nelson run rules to x with the given centre line and
 // sigma (unit of the values) and returns every match, ordered by Index and
 // then Rule. No rules means all eight. With z_i = (x_i − centre)/sigma:

@@ -7,7 +7,8 @@ import (
 )
 
 // Hand-built sequences for the Nelson rules (Nelson, J. Quality Technology
-// 16(4), 1984, rules as listed in spc.md), centre 0 and sigma 1 so values
+// 16(4), 1984, "The Shewhart control chart — tests for special causes";
+// rules seen in two secondary copies), centre 0 and sigma 1 so values
 // are z-scores. Each case gives the indices where the rule must fire; an
 // empty list is a near miss that must not fire. The first expected index is
 // the point that completes the pattern, so the rule must not fire one point
@@ -145,13 +146,7 @@ func TestNelsonAllRulesOrder(t *testing.T) {
 	}
 }
 
-func TestRulesFromMask(t *testing.T) {
-	if got := RulesFromMask(0b1000_0101); !slices.Equal(got, []int{1, 3, 8}) {
-		t.Errorf("mask 0b10000101 → %v, want [1 3 8]", got)
-	}
-	if got := RulesFromMask(0xFF); len(got) != 8 {
-		t.Errorf("mask 0xFF → %v", got)
-	}
+func TestRuleDescription(t *testing.T) {
 	if RuleDescription(4) == "" || RuleDescription(9) != "" {
 		t.Error("rule descriptions")
 	}

@@ -108,7 +108,9 @@ func TestAccessControlMatrix(t *testing.T) {
 		"POST /api/v1/analyze/picket": "therapist", "GET /api/v1/tokens": "admin", "POST /api/v1/tokens": "admin",
 		"DELETE /api/v1/tokens/:id": "admin", "GET /api/v1/audit": "physicist", "GET /api/v1/status": "therapist",
 		"GET /api/v1/alerts": "therapist", "GET /api/v1/alerts/:id": "therapist", "POST /api/v1/alerts/:id/acknowledge": "physicist",
-		"POST /api/v1/alerts/:id/resolve": "physicist", "GET /api/v1/series/:id/chart": "therapist",
+		"GET /api/v1/findings": "therapist", "GET /api/v1/findings/:id": "therapist", "POST /api/v1/findings/:id/acknowledge": "physicist",
+		"POST /api/v1/findings/:id/resolve": "physicist",
+		"POST /api/v1/alerts/:id/resolve":   "physicist", "GET /api/v1/series/:id/chart": "therapist",
 		"GET /api/v1/machines/:id/service-events": "therapist", "POST /api/v1/machines/:id/service-events": "physicist",
 		"GET /": "therapist", "GET /machines/:id": "therapist", "GET /machines/:id/report": "therapist",
 		"POST /machines/:id/report/sign": "physicist", "GET /series/:id": "therapist", "POST /series/:id/baseline": "physicist",
@@ -121,6 +123,8 @@ func TestAccessControlMatrix(t *testing.T) {
 		"POST /machines/:id/reports/:month/sign": "physicist", "GET /findings": "therapist", "GET /findings/:id": "therapist",
 		"POST /findings/:id/acknowledge": "physicist", "POST /findings/:id/resolve": "physicist",
 		"GET /alerts": "therapist", "GET /alerts/:id": "therapist",
+		"PATCH /api/v1/machines/:id": "admin", "GET /api/v1/beams/:id/penumbra-model": "therapist",
+		"POST /api/v1/beams/:id/penumbra-model/predict": "therapist", "GET /machines/:id/beams/:beam": "therapist",
 	}
 	ids := strings.NewReplacer(":id", "", "*", "halfmark.css")
 	pathFor := func(route string) string {

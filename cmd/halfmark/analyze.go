@@ -5,8 +5,10 @@ import (
 	"encoding/json"
 	"fmt"
 	"io"
+	"math"
 	"os"
 	"sort"
+	"strconv"
 	"strings"
 	"text/tabwriter"
 
@@ -16,11 +18,12 @@ import (
 )
 
 const analyzeUsage = `Usage: halfmark analyze profile FILE [--axis X|Y] [--fff|--no-fff] [--normalise cax|max] [--interp linear|cubic] [--smooth N] [--json]
-       halfmark analyze image FILE.dcm [--sid MM --sad MM --pixel MM] [--json]
-       halfmark analyze picket FILE.dcm --pickets -60,-30,0,30,60 [--layout 60|80|SPEC] [--tolerance MM] [--json]
+       halfmark analyze image FILE.dcm [--sid MM --sad MM --pixel MM] [--collimator-deg DEG] [--json]
+       halfmark analyze picket FILE.dcm --pickets -60,-30,0,30,60 [--layout 60|80|SPEC] [--tolerance MM] [--collimator-deg DEG] [--json]
 
 A profile file has two columns, position_mm and signal (comma, tab, semicolon or space separated,
-an optional header line, # comments). Images are DICOM RT Images.`
+an optional header line, # comments). Images are DICOM RT Images; the collimator angle names the
+image sides X1, X2, Y1, Y2 (--collimator-deg supplies it when the file lacks it).`
 
 func cmdAnalyze(ctx context.Context, e env) error {
 	if len(e.args) == 0 || e.args[0] == "--help" || e.args[0] == "-h" {
@@ -33,7 +36,7 @@ func cmdAnalyze(ctx context.Context, e env) error {
 	what := e.args[0]
 	e.args = e.args[1:]
 	fs := newFlags(e, "analyze "+what, "analyze "+what+" [flags] FILE")
-	fs.Usage = func() { fmt.Fprintln(e.stdout, analyzeUsage) }
+	fs.Usage = func() { printUsage(e.stdout, fs, analyzeUsage) }
 	asJSON := fs.Bool("json", false, "print the result as JSON")
 	var pp rawdata.ProfileParams
 	var ip rawdata.ImageParams
@@ -52,6 +55,14 @@ func cmdAnalyze(ctx context.Context, e env) error {
 		fs.Float64Var(&ip.SIDmm, "sid", 0, "source-to-imager distance in mm, when the file lacks RTImageSID")
 		fs.Float64Var(&ip.SADmm, "sad", 0, "source-to-axis distance in mm, when the file lacks RadiationMachineSAD")
 		fs.Float64Var(&ip.PixelMM, "pixel", 0, "imager pixel pitch in mm, when the file lacks ImagePlanePixelSpacing")
+		fs.Func("collimator-deg", "collimator angle in degrees (IEC 61217), when the file lacks BeamLimitingDeviceAngle or to override it", func(s string) error {
+			v, err := strconv.ParseFloat(strings.TrimSpace(s), 64)
+			if err != nil || math.IsNaN(v) || math.IsInf(v, 0) || v < -360 || v > 360 {
+				return fmt.Errorf("give the angle in degrees, -360 to 360 (got %q)", s)
+			}
+			ip.CollimatorDeg = &v
+			return nil
+		})
 		if what == "picket" {
 			fs.StringVar(&pickets, "pickets", "", "nominal strip centres in mm at the isocentre, e.g. -60,-30,0,30,60 (empty: found in the image)")
 			fs.StringVar(&kp.Layout, "layout", "60", "MLC leaf layout: 60, 80 or a spec like 10x10,40x5,10x10 (count x width mm, from Y2)")
@@ -157,6 +168,7 @@ func printField(w io.Writer, r epid.FieldResult) error {
 	if r.Inverted {
 		fmt.Fprintln(tw, "greyscale\tinverted (handled)")
 	}
+	printGeometry(tw, r.Geometry)
 	for _, warn := range r.Warnings {
 		fmt.Fprintf(tw, "warning\t%s\n", warn)
 	}
@@ -180,8 +192,38 @@ func printPicket(w io.Writer, r epid.PicketResult) error {
 	for _, l := range ex {
 		fmt.Fprintf(tw, "beyond tolerance\tbank %d pair %d at picket %.1f mm\terror %+.2f mm, residual %+.2f mm\n", l.Bank, l.Pair, l.PicketMM, l.ErrorMM, l.ResidualMM)
 	}
+	printGeometry(tw, r.Geometry)
 	for _, warn := range r.Warnings {
 		fmt.Fprintf(tw, "warning\t%s\n", warn)
 	}
 	return tw.Flush()
+}
+
+// printGeometry shows what the names and distances rest on: the axis
+// source, imager translation, orientation and collimator angle.
+func printGeometry(w io.Writer, g *epid.GeometryUsed) {
+	if g == nil {
+		return
+	}
+	fmt.Fprintf(w, "axis\t%s\n", g.AxisSource)
+	if t := g.ReceptorTranslationMM; len(t) == 3 {
+		fmt.Fprintf(w, "imager translation\t%g, %g, %g mm\n", t[0], t[1], t[2])
+	} else {
+		fmt.Fprintln(w, "imager translation\tnot in the file")
+	}
+	o := make([]string, len(g.Orientation))
+	for i, v := range g.Orientation {
+		o[i] = strconv.FormatFloat(v, 'g', -1, 64)
+	}
+	fmt.Fprintf(w, "orientation\t(%s)\t%s\n", strings.Join(o, ", "), g.OrientationSource)
+	if g.CollimatorDeg != nil {
+		fmt.Fprintf(w, "collimator\t%g°\t%s\n", *g.CollimatorDeg, g.CollimatorSource)
+	} else {
+		fmt.Fprintf(w, "collimator\tunknown\t%s\n", g.CollimatorSource)
+	}
+	sides := make([]string, 0, 4)
+	for _, e := range []string{epid.EdgeX1, epid.EdgeX2, epid.EdgeY1, epid.EdgeY2} {
+		sides = append(sides, e+" "+g.Sides[e])
+	}
+	fmt.Fprintf(w, "names (%d°)\t%s of the stored image\n", g.NamesQuadrantDeg, strings.Join(sides, ", "))
 }

@@ -11,6 +11,8 @@ import (
 	"strings"
 	"testing"
 
+	"github.com/suyashkumar/dicom/pkg/tag"
+
 	"halfmark/analysis/epid"
 	"halfmark/analysis/epid/synth"
 )
@@ -40,7 +42,7 @@ func erfProfile(t *testing.T, half, sigma, step float64) string {
 
 // The JSON keys scripts rely on, checked against an error-function edge:
 // 50% point at the geometric edge, 80–20 = 2·Φ⁻¹(0.8)·σ = 1.6832·σ
-// (physics.md, derived).
+// (derived).
 func TestAnalyzeProfileJSON(t *testing.T) {
 	p := erfProfile(t, 50, 2, 0.5)
 	code, out, stderr := runPlain(t, "analyze", "profile", "--json", p)
@@ -162,5 +164,59 @@ func TestAnalyzePicketJSON(t *testing.T) {
 	}
 	if !found || len(r.Leaves) == 0 {
 		t.Fatalf("the injected error on bank 2 pair 30 is not in leaves (%d leaves)", len(r.Leaves))
+	}
+}
+
+// An RT Image of known jaws (synth.Placement, analytic) at collimator 180°
+// on an imager shifted by (−20, 15) mm, with the collimator angle left out
+// of the file: --collimator-deg 180 names the edges right (at 180° X1 and
+// X2, Y1 and Y2 swap image sides: IEC 61217, PS3.3 C.8.8.2), and the table
+// shows the geometry used; without it the result warns.
+func TestAnalyzeImageCollimatorFlag(t *testing.T) {
+	g := synth.Default
+	pl := synth.DefaultPlacement(g)
+	pl.CollimatorDeg = 180
+	pl.TranslationMM = [3]float64{-20, 15, g.SADmm - g.SIDmm}
+	f := synth.Field{X1: 30, X2: 70, Y1: 40, Y2: 60, Sigma: 1.5, Bg: 800, Amp: 30000}
+	b, err := synth.RTImage{Imager: g, Frames: [][]float64{f.PixelsPlaced(g, pl)}, Set: pl.Tags(),
+		Omit: map[tag.Tag]bool{synth.TagBeamLimitingDevAngle: true}}.Bytes()
+	if err != nil {
+		t.Fatal(err)
+	}
+	p := filepath.Join(t.TempDir(), "c180.dcm")
+	if err := os.WriteFile(p, b, 0o644); err != nil {
+		t.Fatal(err)
+	}
+	code, out, stderr := runPlain(t, "analyze", "image", "--json", "--collimator-deg", "180", p)
+	if code != 0 {
+		t.Fatalf("exit %d: %s", code, stderr)
+	}
+	var fr epid.FieldResult
+	if err := json.Unmarshal([]byte(out), &fr); err != nil {
+		t.Fatal(err)
+	}
+	for _, c := range []struct {
+		name      string
+		got, want float64
+	}{{"X1", fr.X1MM, 30}, {"X2", fr.X2MM, 70}, {"Y1", fr.Y1MM, 40}, {"Y2", fr.Y2MM, 60}} {
+		if math.Abs(c.got-c.want) > 0.1 {
+			t.Errorf("%s = %.3f mm, model %g", c.name, c.got, c.want)
+		}
+	}
+	if fr.Geometry == nil || fr.Geometry.CollimatorDeg == nil || *fr.Geometry.CollimatorDeg != 180 || fr.Geometry.Sides["X2"] != "left" {
+		t.Errorf("geometry_used %+v", fr.Geometry)
+	}
+	code, out, _ = runPlain(t, "analyze", "image", "--collimator-deg", "180", p)
+	for _, s := range []string{"axis", "RTImagePosition + XRayImageReceptorTranslation", "imager translation", "-20, 15, -500 mm", "orientation", "collimator", "180°", "X2 left"} {
+		if code != 0 || !strings.Contains(out, s) {
+			t.Errorf("table lacks %q:\n%s", s, out)
+		}
+	}
+	code, out, _ = runPlain(t, "analyze", "image", p)
+	if code != 0 || !strings.Contains(out, "collimator angle unknown") {
+		t.Errorf("without the flag the missing angle must be a warning:\n%s", out)
+	}
+	if code, _, stderr := runPlain(t, "analyze", "image", "--collimator-deg", "ninety", p); code == 0 || !strings.Contains(stderr, "collimator-deg") {
+		t.Errorf("a bad --collimator-deg must fail naming it: %d %s", code, stderr)
 	}
 }

@@ -21,12 +21,7 @@ var errHelp = errors.New("help shown")
 func newFlags(e env, name, synopsis string) *flag.FlagSet {
 	fs := flag.NewFlagSet("halfmark "+name, flag.ContinueOnError)
 	fs.SetOutput(e.stderr)
-	fs.Usage = func() {
-		fmt.Fprintf(e.stdout, "Usage: halfmark %s\n\nFlags (each also read from HALFMARK_<NAME> in the environment):\n", synopsis)
-		fs.SetOutput(e.stdout)
-		fs.PrintDefaults()
-		fs.SetOutput(e.stderr)
-	}
+	fs.Usage = func() { printUsage(e.stdout, fs, "Usage: halfmark "+synopsis) }
 	return fs
 }
 
@@ -44,7 +39,7 @@ func parseFlags(fs *flag.FlagSet, e env) error {
 	if envErr != nil {
 		return envErr
 	}
-	if err := fs.Parse(e.args); err != nil {
+	if err := parseAnywhere(fs, e.args); err != nil {
 		if errors.Is(err, flag.ErrHelp) {
 			return errHelp
 		}

@@ -2,10 +2,8 @@ package main
 
 import (
 	"context"
-	"flag"
 	"fmt"
 	"sort"
-	"strings"
 	"time"
 
 	"halfmark"
@@ -23,13 +21,12 @@ func cmdDemo(ctx context.Context, e env) error {
 	fs := f.register(e, "demo")
 	end := fs.String("end", "", "last day of the demo history, YYYY-MM-DD (default: today, up to the present hour)")
 	loadOnly := fs.Bool("load-only", false, "load and evaluate the demo, print the picture, and exit without serving")
+	// The demo's own default, shown as such by --help.
+	dir := fs.Lookup("data-dir")
+	dir.DefValue = demoDataDir
+	_ = dir.Value.Set(demoDataDir)
 	if err := parseFlags(fs, e); err != nil {
 		return err
-	}
-	dirSet := e.getenv("HALFMARK_DATA_DIR") != ""
-	fs.Visit(func(fl *flag.Flag) { dirSet = dirSet || fl.Name == "data-dir" })
-	if !dirSet {
-		f.db.dataDir = demoDataDir
 	}
 	endDay := time.Now().UTC()
 	if *end != "" {
@@ -104,36 +101,39 @@ func isDemo(ms []halfmark.Machine) bool {
 	return true
 }
 
-// printPicture prints the front page as text: each machine's level, worst
-// series and projected crossing.
+// printPicture prints the front page as text: each machine's level and
+// its active findings, one line each, as the drift engine decided them.
 func printPicture(ctx context.Context, st *store, e env) error {
 	status, err := st.Status(ctx)
 	if err != nil {
 		return err
 	}
+	fs, err := st.Findings(ctx, halfmark.FindingFilter{State: "active"})
+	if err != nil {
+		return err
+	}
+	byMachine := map[int64][]halfmark.Finding{}
+	for _, f := range fs {
+		byMachine[f.MachineID] = append(byMachine[f.MachineID], f)
+	}
 	sort.SliceStable(status, func(i, j int) bool { return status[i].Level > status[j].Level })
-	fmt.Fprintln(e.stdout, "\nWhat the dashboard shows first:")
+	fmt.Fprintln(e.stdout, "\nWhat the dashboard shows first (one line per finding: one physical fault each):")
 	for _, m := range status {
-		line := fmt.Sprintf("  %-7s %-28s", m.Name, m.Level.String())
-		if w := m.Worst; w != nil && m.Level > 0 {
-			line += fmt.Sprintf(" %s %s %s", w.BeamLabel, w.Edge, w.Quantity)
-			if w.DeviationMM != nil {
-				line += fmt.Sprintf(", %+.2f mm from baseline", *w.DeviationMM)
+		fmt.Fprintf(e.stdout, "  %-7s %s\n", m.Name, m.Level.String())
+		for _, f := range byMachine[m.ID] {
+			line := fmt.Sprintf("      %s %s %s: %+.2f mm (95%% CI %+.2f to %+.2f)", f.Level.String(), f.Kind, f.Name,
+				f.MagnitudeMM, f.MagnitudeCIMM[0], f.MagnitudeCIMM[1])
+			switch {
+			case f.Crossing.Status == halfmark.CrossingProjected && f.Crossing.ToleranceDate != nil:
+				line += ", tolerance reached about " + f.Crossing.ToleranceDate.Format(time.DateOnly)
+			case f.Crossing.Status == halfmark.CrossingAlreadyBeyond:
+				line += ", beyond tolerance now"
 			}
-			if w.ToleranceMM != nil {
-				line += fmt.Sprintf(" (tolerance ±%.1f mm)", *w.ToleranceMM)
+			if f.Cause != nil {
+				line += ", likely cause: " + f.Cause.Kind
 			}
-			if w.ProjectedCrossing != nil {
-				line += ", projected to cross " + w.ProjectedCrossing.Format(time.DateOnly)
-			}
-			if w.Rule != "" {
-				line += " — " + w.Rule
-			}
+			fmt.Fprintln(e.stdout, line)
 		}
-		if m.OpenAlerts > 0 {
-			line += fmt.Sprintf("; %d open alert(s)", m.OpenAlerts)
-		}
-		fmt.Fprintln(e.stdout, strings.TrimRight(line, " "))
 	}
 	return nil
 }

@@ -15,8 +15,6 @@ import (
 	"testing"
 	"time"
 
-	"github.com/jackc/pgx/v5"
-
 	"halfmark/db/dbtest"
 )
 
@@ -39,13 +37,13 @@ func runCLI(t *testing.T, url string, args ...string) (int, string, string) {
 
 func count(t *testing.T, url, q string) int {
 	t.Helper()
-	conn, err := pgx.Connect(context.Background(), url)
+	d, err := db.Open(context.Background(), url)
 	if err != nil {
 		t.Fatal(err)
 	}
-	defer conn.Close(context.Background())
+	defer d.Close()
 	var n int
-	if err := conn.QueryRow(context.Background(), q).Scan(&n); err != nil {
+	if err := d.Pool.QueryRow(context.Background(), q).Scan(&n); err != nil {
 		t.Fatal(err)
 	}
 	return n

@@ -57,21 +57,55 @@ func (m *mailbox) count(substr string) int {
 
 // startProc runs the binary with args and env until the test ends.
 func startProc(t *testing.T, bin string, env []string, args ...string) *exec.Cmd {
+	return startProcOut(t, bin, env, nil, args...)
+}
+
+// startListening runs a server process on 127.0.0.1:0 and returns the
+// address it bound (from its "listening on" line) once it answers /readyz.
+func startListening(t *testing.T, bin string, env []string, args ...string) string {
+	t.Helper()
+	addrc := make(chan string, 1)
+	startProcOut(t, bin, env, func(line string) {
+		if m := listeningRE.FindStringSubmatch(line); m != nil {
+			select {
+			case addrc <- m[1]:
+			default:
+			}
+		}
+	}, append(args, "--addr", "127.0.0.1:0")...)
+	select {
+	case addr := <-addrc:
+		waitReady(t, addr)
+		return addr
+	case <-time.After(60 * time.Second):
+		t.Fatalf("%s printed no listening address within 60 s", args[0])
+		return ""
+	}
+}
+
+// startProcOut is startProc with a callback for each line of standard output.
+func startProcOut(t *testing.T, bin string, env []string, onStdout func(string), args ...string) *exec.Cmd {
 	t.Helper()
 	cmd := exec.Command(bin, args...)
 	cmd.Env = append(os.Environ(), env...)
 	out, _ := cmd.StderrPipe()
+	stdout, _ := cmd.StdoutPipe()
 	if err := cmd.Start(); err != nil {
 		t.Fatal(err)
 	}
-	go func() { // keep the pipe drained; show the logs only when the test fails
-		sc := bufio.NewScanner(out)
+	drain := func(r io.Reader, line func(string)) { // keep the pipes drained; show the logs with -v
+		sc := bufio.NewScanner(r)
 		for sc.Scan() {
+			if line != nil {
+				line(sc.Text())
+			}
 			if testing.Verbose() {
 				t.Logf("%s: %s", args[0], sc.Text())
 			}
 		}
-	}()
+	}
+	go drain(out, nil)
+	go drain(stdout, onStdout)
 	t.Cleanup(func() {
 		_ = cmd.Process.Signal(os.Interrupt)
 		done := make(chan struct{})
@@ -116,15 +150,9 @@ func TestScaleOutTwoAPIsTwoWorkers(t *testing.T) {
 	env := []string{"HALFMARK_DATABASE_URL=" + url, "HALFMARK_SMTP_HOST=127.0.0.1", "HALFMARK_SMTP_PORT=" + smtpPort,
 		"HALFMARK_SMTP_TLS=none", "HALFMARK_SMTP_FROM=halfmark@kestrel-bay.example",
 		"HALFMARK_NOTIFY_LEVEL2=chief@kestrel-bay.example", "HALFMARK_NOTIFY_LEVEL3=chief@kestrel-bay.example"}
-	addrs := []string{freeAddr(t), freeAddr(t)}
-	for _, a := range addrs {
-		startProc(t, bin, env, "api", "--addr", a)
-	}
+	addrs := []string{startListening(t, bin, env, "api"), startListening(t, bin, env, "api")}
 	for i := 0; i < 2; i++ {
 		startProc(t, bin, env, "worker", "--evaluate-every", "2s", "--deliver-every", "2s")
-	}
-	for _, a := range addrs {
-		waitReady(t, a)
 	}
 	a := halfmark.CLIActor("scale-out")
 	_, tok, err := d.CreateToken(ctx, a, "scale-out", halfmark.RoleAdmin)
@@ -190,11 +218,21 @@ func TestScaleOutTwoAPIsTwoWorkers(t *testing.T) {
 	if checks != 31 {
 		t.Fatalf("%d checks stored, want 31", checks)
 	}
-	// One run per slot, and both workers took part.
+	// One run per slot, and both workers took part: scale-out means both
+	// run slots, not one running while the other idles. Slots come every
+	// 2 s per job; give the second worker up to 30 s to win one.
 	var slots, runs, workers int
-	_ = d.Pool.QueryRow(ctx, `SELECT count(DISTINCT (job, slot)), count(*), count(DISTINCT worker) FROM job_runs`).Scan(&slots, &runs, &workers)
+	for deadline := time.Now().Add(30 * time.Second); ; time.Sleep(time.Second) {
+		_ = d.Pool.QueryRow(ctx, `SELECT count(DISTINCT (job, slot)), count(*), count(DISTINCT worker) FROM job_runs`).Scan(&slots, &runs, &workers)
+		if workers >= 2 || time.Now().After(deadline) {
+			break
+		}
+	}
 	if slots != runs || runs == 0 {
 		t.Fatalf("%d job runs for %d slots", runs, slots)
+	}
+	if workers != 2 {
+		t.Fatalf("slots were run by %d worker(s), want both", workers)
 	}
 	var evals, evalSlots int
 	_ = d.Pool.QueryRow(ctx, `SELECT count(*), count(DISTINCT at) FROM evaluations WHERE series_id = $1`, x1).Scan(&evals, &evalSlots)

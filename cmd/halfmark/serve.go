@@ -122,16 +122,11 @@ func runParts(ctx context.Context, e env, st *store, f serveFlags, log *slog.Log
 // /metrics on one echo server.
 func newHandler(d *db.DB, wk *worker.Worker, log *slog.Logger, metrics *api.Metrics) (http.Handler, error) {
 	deps := web.Deps{Machines: d, Checks: d, Series: d, Users: d, Sessions: d, SignOffs: d,
-		Raw: d, Status: d, Alerts: d, Events: d, Audit: d, Tolerances: liveBook{wk}, Log: log, Reports: d}
-	// The engine's stored findings and evaluations, once the store serves them.
-	if f, ok := any(d).(halfmark.FindingService); ok {
-		deps.Findings = f
-	}
-	if e, ok := any(d).(halfmark.EvaluationService); ok {
-		deps.Evaluations = e
-	}
+		Raw: d, Status: d, Alerts: d, Events: d, Audit: d, Tolerances: liveBook{wk}, Log: log, Penumbra: d,
+		Findings: d, Evaluations: d, Reports: d}
 	h := api.New(api.Services{Machines: d, Checks: d, Series: d, Auth: d, Audit: d, Pinger: d, Log: log,
-		Alerts: d, Status: d, Events: d, Charts: wk, Raw: d, Metrics: metrics, Reports: d, ReportRenderer: web.NewReporter(deps)})
+		Alerts: d, Status: d, Events: d, Findings: d, Evaluations: d, Raw: d, Metrics: metrics, Penumbra: d,
+		Reports: d, ReportRenderer: web.NewReporter(deps)})
 	err := web.Register(h, deps)
 	return h, err
 }

@@ -4,10 +4,10 @@ import (
 	"bytes"
 	"context"
 	"fmt"
-	"net"
 	"net/http"
 	"os"
 	"path/filepath"
+	"regexp"
 	"strings"
 	"sync"
 	"testing"
@@ -32,20 +32,15 @@ func (s *syncBuffer) String() string {
 	return s.b.String()
 }
 
-func freeAddr(t *testing.T) string {
-	l, err := net.Listen("tcp", "127.0.0.1:0")
-	if err != nil {
-		t.Fatal(err)
-	}
-	defer l.Close()
-	return l.Addr().String()
-}
+// listeningRE finds the address a server prints once it has bound its
+// socket: tests pass --addr 127.0.0.1:0 and read the port the server chose,
+// so no port is freed for another process to take in between.
+var listeningRE = regexp.MustCompile(`listening on http://([0-9.]+:[0-9]+)`)
 
 // startServe runs `halfmark serve` with no database URL in dir and waits
 // for /readyz; the returned stop function sends the equivalent of Ctrl-C.
 func startServe(t *testing.T, dir string) (addr string, stop func() string) {
 	t.Helper()
-	addr = freeAddr(t)
 	ctx, cancel := context.WithCancel(context.Background())
 	var out, errb syncBuffer
 	done := make(chan int)
@@ -56,12 +51,15 @@ func startServe(t *testing.T, dir string) (addr string, stop func() string) {
 		return "" // no database URL: the private cluster
 	}
 	go func() {
-		done <- run(ctx, []string{"halfmark", "serve", "--addr", addr}, getenv, strings.NewReader(""), &out, &errb)
+		done <- run(ctx, []string{"halfmark", "serve", "--addr", "127.0.0.1:0"}, getenv, strings.NewReader(""), &out, &errb)
 	}()
 	deadline := time.Now().Add(90 * time.Second)
 	for {
+		if m := listeningRE.FindStringSubmatch(out.String()); m != nil {
+			addr = m[1]
+		}
 		resp, err := http.Get("http://" + addr + "/readyz")
-		if err == nil {
+		if addr != "" && err == nil {
 			resp.Body.Close()
 			if resp.StatusCode == 200 {
 				break

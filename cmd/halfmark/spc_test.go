@@ -20,7 +20,7 @@ func writeSeries(t *testing.T, text string) string {
 }
 
 // Montgomery, Introduction to Statistical Quality Control, Example 9.1
-// (spc.md, data seen in two copies): μ0 = 10, σ = 1, k = 0.5, h = 5; the
+// (data seen in two copies): μ0 = 10, σ = 1, k = 0.5, h = 5; the
 // tabular CUSUM first signals at sample 29 with C+ = 5.28 (secondary).
 const montgomery91 = "9.45 7.99 9.29 11.66 12.16 10.18 8.04 11.46 9.20 10.34 9.03 11.47 10.51 9.40 10.08 " +
 	"9.37 10.62 10.31 8.52 10.84 10.90 9.33 12.29 11.50 10.60 11.08 10.38 11.62 11.31 10.52"
@@ -55,7 +55,7 @@ func TestSPCCommandCUSUM(t *testing.T) {
 	}
 }
 
-// NIST/SEMATECH e-Handbook §6.3.2.2 (secondary in spc.md): UCL 55.8041,
+// NIST/SEMATECH e-Handbook of Statistical Methods §6.3.2.2 (secondary copy): UCL 55.8041,
 // LCL 45.8159, centre 50.81, in control.
 func TestSPCCommandIMR(t *testing.T) {
 	p := writeSeries(t, "49.6\n47.6\n49.9\n51.3\n47.8\n51.2\n52.6\n52.4\n53.6\n52.1\n")

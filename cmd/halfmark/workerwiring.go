@@ -7,9 +7,6 @@ import (
 	"log/slog"
 	"time"
 
-	"github.com/jackc/pgx/v5"
-
-	"halfmark"
 	"halfmark/worker"
 	"halfmark/worker/notify"
 )
@@ -23,15 +20,13 @@ type workerFlags struct {
 	once          bool
 	evaluateEvery time.Duration
 	deliverEvery  time.Duration
-	batch         int
 }
 
 func (w *workerFlags) register(fs *flag.FlagSet, withOnce bool) {
-	fs.StringVar(&w.tolerances, "tolerances", "", "tolerance book (TOML, see deploy/tolerances.example.toml); empty: the shipped AAPM TG-142 example. SIGHUP reloads it")
+	fs.StringVar(&w.tolerances, "tolerances", "", "tolerance book (TOML, see analysis/tolerance/example.toml); empty: the shipped AAPM TG-142 example. SIGHUP reloads it")
 	fs.StringVar(&w.timezone, "timezone", "Local", "site time zone of the schedule (IANA name such as Europe/Berlin, or Local)")
 	fs.DurationVar(&w.evaluateEvery, "evaluate-every", time.Minute, "how often series with new points are evaluated (each interval runs on one worker only)")
 	fs.DurationVar(&w.deliverEvery, "deliver-every", 30*time.Second, "how often queued notifications are sent")
-	fs.IntVar(&w.batch, "eval-batch", 250, "series read, evaluated and stored per transaction")
 	if withOnce {
 		fs.BoolVar(&w.once, "once", false, "run one evaluation and one notification delivery, then exit")
 	}
@@ -52,19 +47,18 @@ func (w workerFlags) build(e env, st *store, log *slog.Logger, observe func(stri
 		return nil, err
 	}
 	ncfg.Location = loc
-	deliverer := notify.New(st.Pool, ncfg, log)
+	composer := notify.NewComposer(ncfg)
+	deliverer := notify.New(st.DB, ncfg, log)
 	return worker.New(st.DB, worker.Config{
 		TolerancesPath:  w.tolerances,
 		Location:        loc,
 		IncrementalSpec: "@every " + w.evaluateEvery.String(),
 		DeliverySpec:    "@every " + w.deliverEvery.String(),
 		Observe:         observe,
-		BatchSize:       w.batch,
-		EnqueueAlert: func(ctx context.Context, tx pgx.Tx, al halfmark.Alert) error {
-			return notify.EnqueueAlert(ctx, tx, al, ncfg)
-		},
+		Notifier:        composer,
+		Penumbra:        st.DB,
 		EnqueueDigest: func(ctx context.Context, day time.Time, loc *time.Location) error {
-			return notify.EnqueueDigest(ctx, st.Pool, day, loc, ncfg)
+			return notify.EnqueueDigest(ctx, st.DB, composer, day, loc)
 		},
 		Deliver: deliverer.RunOnce,
 	}, log)

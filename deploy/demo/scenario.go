@@ -9,7 +9,8 @@
 // offset by 0.9 mm (Level 2: a bank mean beyond the 0.5 mm bank-mean
 // tolerance of the shipped tolerance book and inside its 1 mm action limit,
 // with the leaves that stray furthest beyond the 1 mm leaf tolerance);
-// Plover is steady.
+// Plover is steady; on Avocet the focal spot grows after a target service,
+// widening the penumbra of the upper jaws most (see avocet.go).
 package demo
 
 import (
@@ -78,15 +79,22 @@ type Machine struct {
 	Story   string
 }
 
-// Machines are the three demo linacs.
+// Machines are the four demo linacs. Their collimator distances are
+// invented.
 func Machines() []Machine {
+	generic := func() *halfmark.Collimators {
+		return &halfmark.Collimators{UpperJaws: "Y", UpperSCDcm: 28, LowerSCDcm: 36.7, MLCSCDcm: 50.9}
+	}
 	return []Machine{
-		{halfmark.Machine{Name: "Tern", SADcm: 100, Model: "generic C-arm linac", Serial: "KB-T-0417", MLCLeafPairs: 60, MLCLayout: "60", Clinical: true},
+		{halfmark.Machine{Name: "Tern", SADcm: 100, Model: "generic C-arm linac", Serial: "KB-T-0417", MLCLeafPairs: 60, MLCLayout: "60", Clinical: true, Collimators: generic()},
 			[]Beam{{6, false}, {6, true}, {10, false}}, "Y2 jaw drifting outward slowly"},
-		{halfmark.Machine{Name: "Heron", SADcm: 100, Model: "generic C-arm linac", Serial: "KB-H-0822", MLCLeafPairs: 60, MLCLayout: "60", Clinical: true},
+		{halfmark.Machine{Name: "Heron", SADcm: 100, Model: "generic C-arm linac", Serial: "KB-H-0822", MLCLeafPairs: 60, MLCLayout: "60", Clinical: true, Collimators: generic()},
 			[]Beam{{6, false}, {10, true}}, "MLC bank 2 offset after a service"},
-		{halfmark.Machine{Name: "Plover", SADcm: 100, Model: "generic C-arm linac", Serial: "KB-P-1193", MLCLeafPairs: 60, MLCLayout: "60", Clinical: true},
+		{halfmark.Machine{Name: "Plover", SADcm: 100, Model: "generic C-arm linac", Serial: "KB-P-1193", MLCLeafPairs: 60, MLCLayout: "60", Clinical: true, Collimators: generic()},
 			[]Beam{{6, false}, {15, false}}, "steady"},
+		{halfmark.Machine{Name: avocet, SADcm: 100, Model: "generic C-arm linac, second type", Serial: "KB-A-1508", MLCLeafPairs: 60, MLCLayout: "60", Clinical: true,
+			Collimators: &halfmark.Collimators{UpperJaws: "X", UpperSCDcm: 27, LowerSCDcm: 36, MLCSCDcm: 45}},
+			[]Beam{{6, false}, {10, false}}, "focal spot larger after a target service: upper-jaw penumbra wider"},
 	}
 }
 
@@ -144,6 +152,10 @@ func (g *Generator) Items(m Machine, machineID int64, beamIDs []int64) []Item {
 			c.Edges = append(c.Edges, halfmark.EdgeResult{Edge: e, PositionMM: round2(g.truth(name, e, at) + g.noise(0.02))})
 		}
 		out = append(out, Item{Check: c})
+		if name == avocet {
+			out = append(out, g.avocetTank(m, machineID, beamIDs[bi], b, at.Add(time.Hour), halfmark.KindCommissioning, true, 0.02)...)
+			continue
+		}
 		for ai, axis := range []string{"X", "Y"} {
 			ct := halfmark.Check{MachineID: machineID, BeamID: beamIDs[bi], Kind: halfmark.KindCommissioning,
 				MeasuredAt: at.Add(time.Duration(ai+1) * time.Hour), Device: "water tank, 0.04 cm³ chamber", Operator: physicists[0], Setup: tank}
@@ -161,6 +173,10 @@ func (g *Generator) Items(m Machine, machineID int64, beamIDs []int64) []Item {
 			out = append(out, Item{Event: &halfmark.ServiceEvent{MachineID: machineID, At: g.serviceDay(),
 				Note: "MLC bank 2 leaf drive motors replaced; leaf positions recalibrated by the service engineer"}})
 		}
+		if name == avocet && sameDay(d, g.avocetService()) {
+			out = append(out, Item{Event: &halfmark.ServiceEvent{MachineID: machineID, At: g.avocetService(),
+				Note: "target replaced and beam steering re-tuned by the service engineer"}})
+		}
 		if wd := d.Weekday(); wd == time.Saturday || wd == time.Sunday {
 			continue
 		}
@@ -176,6 +192,10 @@ func (g *Generator) Items(m Machine, machineID int64, beamIDs []int64) []Item {
 		if d.Weekday() == time.Tuesday && d.Day() > 7 && d.Day() <= 14 {
 			monthsAgo := int(g.End.Sub(d).Hours() / 24 / 30)
 			for bi, b := range m.Beams {
+				if name == avocet {
+					out = append(out, g.avocetTank(m, machineID, beamIDs[bi], b, d.Add(time.Duration(17*60+bi*60)*time.Minute), halfmark.KindMonthly, monthsAgo < 4, 0.1)...)
+					continue
+				}
 				for ai, axis := range []string{"X", "Y"} {
 					at := d.Add(time.Duration(18*60+bi*25+ai*10) * time.Minute)
 					c := halfmark.Check{MachineID: machineID, BeamID: beamIDs[bi], Kind: halfmark.KindMonthly, MeasuredAt: at,

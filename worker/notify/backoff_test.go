@@ -61,7 +61,7 @@ func TestMessageIDIsStableAndWellFormed(t *testing.T) {
 		{},
 	}
 	for _, cfg := range cfgs {
-		for _, key := range []string{"alert:42:level:3:email", "digest:2026-12-02:webhook", "odd key: with spaces..and dots"} {
+		for _, key := range []string{"finding:42:level:3:email", "digest:2026-12-02:webhook", "odd key: with spaces..and dots"} {
 			id := messageID(key, cfg)
 			if id != messageID(key, cfg) {
 				t.Fatalf("messageID(%q) is not stable", key)
@@ -72,10 +72,10 @@ func TestMessageIDIsStableAndWellFormed(t *testing.T) {
 			}
 		}
 	}
-	if a, b := messageID("alert:1:level:3:email", Config{}), messageID("alert:1:level:2:email", Config{}); a == b {
+	if a, b := messageID("finding:1:level:3:email", Config{}), messageID("finding:1:level:2:email", Config{}); a == b {
 		t.Errorf("two dedupe keys share the Message-ID %q", a)
 	}
-	if got := messageID("alert:42:level:3:email", cfgs[0]); got != "halfmark.alert.42.level.3.email@halfmark.hospital.example" {
+	if got := messageID("finding:42:level:3:email", cfgs[0]); got != "halfmark.finding.42.level.3.email@halfmark.hospital.example" {
 		t.Errorf("messageID = %q", got)
 	}
 	if got := messageID("x", cfgs[1]); got != "halfmark.x@mail.example" {

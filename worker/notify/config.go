@@ -59,12 +59,13 @@ type Config struct {
 	WebhookSecret string // key of the HMAC-SHA256 body signature
 
 	// Recipients lists the e-mail addresses per level: LevelInspect for the
-	// daily digest, LevelScheduled and LevelImmediate for the alerts of
+	// daily digest, LevelScheduled and LevelImmediate for the findings of
 	// that level. A level without addresses gets no e-mail.
 	Recipients map[halfmark.Level][]string
 
 	// DashboardURL is the dashboard's base URL; links are
-	// DashboardURL + "/alerts/<id>" and DashboardURL + "/alerts".
+	// DashboardURL + "/findings/<id>", DashboardURL + "/findings" and
+	// DashboardURL + "/machines/<id>".
 	DashboardURL string
 	// Location is the time zone dates are written in (nil: UTC).
 	Location *time.Location

@@ -5,19 +5,16 @@ import (
 	"crypto/hmac"
 	"crypto/sha256"
 	"encoding/hex"
-	"encoding/json"
 	"errors"
 	"net/http"
 	"net/http/httptest"
-	"slices"
 	"strings"
 	"sync"
 	"testing"
 	"time"
 
-	"github.com/jackc/pgx/v5"
-
 	"halfmark"
+	"halfmark/db"
 )
 
 // verifySignature checks X-Halfmark-Signature the way a receiver would,
@@ -41,208 +38,29 @@ func verifySignature(t *testing.T, secret string, r hookRequest) {
 	}
 }
 
-func TestLevel3AlertDeliversOneEmailAndOneSignedWebhook(t *testing.T) {
-	ctx := context.Background()
-	pool := newPool(t)
-	srvTLS, cliTLS := testTLS(t)
-	ms := newMailServer(t, srvTLS)
-	h := newHook(t)
-	cfg := baseConfig(ms, cliTLS, h, nil)
-	al := level3Alert()
-
-	enqueue(t, pool, al, cfg)
-	if rows := outboxRows(t, pool); len(rows) != 2 {
-		t.Fatalf("outbox has %d rows after one Level 3 alert, want 2 (email and webhook)", len(rows))
-	}
-
-	d := New(pool, cfg, nil)
-	n, err := d.RunOnce(ctx)
-	if err != nil || n != 2 {
-		t.Fatalf("RunOnce = %d, %v; want 2 deliveries", n, err)
-	}
-
-	msgs := ms.Messages()
-	if len(msgs) != 1 {
-		t.Fatalf("SMTP server got %d messages, want 1", len(msgs))
-	}
-	m := msgs[0]
-	if !m.TLS {
-		t.Errorf("the message was sent without STARTTLS although the policy is mandatory")
-	}
-	// The subject format is the one the design asks for.
-	if got, want := m.Header(t, "Subject"), "[Halfmark] Level 3 — immediate action: Linac A 6 MV X2"; got != want {
-		t.Errorf("Subject = %q, want %q", got, want)
-	}
-	if got, want := m.Header(t, "Message-ID"), "<halfmark.alert.42.level.3.email@halfmark.physics.example>"; got != want {
-		t.Errorf("Message-ID = %q, want %q (stable, from the dedupe key)", got, want)
-	}
-	if got := m.Header(t, HeaderDelivery); got != "alert:42:level:3:email" {
-		t.Errorf("%s = %q", HeaderDelivery, got)
-	}
-	if got := m.Header(t, "Auto-Submitted"); got != "auto-generated" { // RFC 3834 §5
-		t.Errorf("Auto-Submitted = %q", got)
-	}
-	if m.From != cfg.From {
-		t.Errorf("envelope sender %q, want %q", m.From, cfg.From)
-	}
-	if want := cfg.Recipients[halfmark.LevelImmediate]; !slices.Equal(m.Rcpts, want) {
-		t.Errorf("recipients %v, want the Level 3 list %v", m.Rcpts, want)
-	}
-	body := m.Body(t)
-	for _, want := range []string{
-		"Machine:", "Linac A", "Beam:", "6 MV", "Edge:", "X2",
-		"50% edge position", "+2.40 mm (tolerance ±1.00 mm, action limit ±2.00 mm)",
-		"beyond action limit", "Projected crossing:  2026-12-09",
-		"https://halfmark.physics.example/alerts/42",
-		// The caution text as the design states it.
-		"Halfmark's results support, and never replace, the judgement of a qualified medical physicist; tolerances are set locally.",
-	} {
-		if !strings.Contains(body, want) {
-			t.Errorf("e-mail body lacks %q:\n%s", want, body)
-		}
-	}
-
-	reqs := h.Requests()
-	if len(reqs) != 1 {
-		t.Fatalf("webhook got %d requests, want 1", len(reqs))
-	}
-	r := reqs[0]
-	verifySignature(t, cfg.WebhookSecret, r)
-	if got := r.Header.Get(HeaderDelivery); got != "alert:42:level:3:webhook" {
-		t.Errorf("%s = %q", HeaderDelivery, got)
-	}
-	if got := r.Header.Get("Content-Type"); got != "application/json" {
-		t.Errorf("Content-Type = %q", got)
-	}
-	var ev struct {
-		Event  string         `json:"event"`
-		Alert  halfmark.Alert `json:"alert"`
-		SentAt time.Time      `json:"sent_at"`
-	}
-	if err := json.Unmarshal(r.Body, &ev); err != nil {
-		t.Fatalf("webhook body is not the expected JSON: %v\n%s", err, r.Body)
-	}
-	if ev.Event != "alert" || ev.Alert.ID != 42 || ev.Alert.Level != halfmark.LevelImmediate || ev.Alert.Edge != "X2" ||
-		ev.Alert.DeviationMM == nil || *ev.Alert.DeviationMM != 2.4 || ev.SentAt.IsZero() {
-		t.Errorf("webhook payload = %+v", ev)
-	}
-
-	// A repeat of the same alert at the same level adds nothing and sends nothing.
-	enqueue(t, pool, al, cfg)
-	if rows := outboxRows(t, pool); len(rows) != 2 {
-		t.Fatalf("outbox has %d rows after a repeated enqueue, want still 2", len(rows))
-	}
-	if n, err := d.RunOnce(ctx); n != 0 || err != nil {
-		t.Fatalf("second RunOnce = %d, %v; want 0, nil", n, err)
-	}
-	if len(ms.Messages()) != 1 || len(h.Requests()) != 1 {
-		t.Fatalf("a repeat was delivered: %d e-mails, %d webhooks", len(ms.Messages()), len(h.Requests()))
-	}
-	for _, row := range outboxRows(t, pool) {
-		if row.DeliveredAt == nil || row.Attempts != 1 || row.LastError != nil {
-			t.Errorf("row %s: delivered_at %v attempts %d last_error %v", row.Key, row.DeliveredAt, row.Attempts, row.LastError)
-		}
-	}
-
-	// An escalation of the same alert to another level is a new notification.
-	al2 := al
-	al2.Level = halfmark.LevelScheduled
-	enqueue(t, pool, al2, cfg)
-	if rows := outboxRows(t, pool); len(rows) != 4 {
-		t.Fatalf("outbox has %d rows after the alert at another level, want 4", len(rows))
-	}
-}
-
-func TestEnqueueAlertFollowsTheCallersTransaction(t *testing.T) {
-	ctx := context.Background()
-	pool := newPool(t)
-	cfg := Config{SMTPHost: "127.0.0.1", From: "halfmark@physics.example", WebhookURL: "http://127.0.0.1:1/h",
-		Recipients: map[halfmark.Level][]string{halfmark.LevelImmediate: {"a@physics.example"}}}
-	rollback := errors.New("roll back")
-	err := pgx.BeginFunc(ctx, pool, func(tx pgx.Tx) error {
-		if err := EnqueueAlert(ctx, tx, level3Alert(), cfg); err != nil {
-			return err
-		}
-		return rollback
-	})
-	if !errors.Is(err, rollback) {
-		t.Fatalf("transaction: %v", err)
-	}
-	if rows := outboxRows(t, pool); len(rows) != 0 {
-		t.Fatalf("a rolled-back alert change left %d outbox rows", len(rows))
-	}
-}
-
-func TestEnqueueAlertByLevelAndConfig(t *testing.T) {
-	pool := newPool(t)
-	full := Config{SMTPHost: "127.0.0.1", From: "halfmark@physics.example", WebhookURL: "http://127.0.0.1:1/h",
-		Recipients: map[halfmark.Level][]string{halfmark.LevelScheduled: {"b@physics.example"}}}
-	cases := []struct {
-		name  string
-		level halfmark.Level
-		cfg   Config
-		want  []string // channels
-	}{
-		{"level 0", halfmark.LevelInControl, full, nil},
-		{"level 1 goes to the digest", halfmark.LevelInspect, full, nil},
-		{"level 2", halfmark.LevelScheduled, full, []string{ChannelEmail, ChannelWebhook}},
-		{"level 3 without level 3 recipients", halfmark.LevelImmediate, full, []string{ChannelWebhook}},
-		{"no SMTP host", halfmark.LevelScheduled, Config{Recipients: full.Recipients, WebhookURL: full.WebhookURL}, []string{ChannelWebhook}},
-		{"nothing configured", halfmark.LevelImmediate, Config{}, nil},
-	}
-	for i, c := range cases {
-		t.Run(c.name, func(t *testing.T) {
-			if _, err := pool.Exec(context.Background(), "DELETE FROM outbox"); err != nil {
-				t.Fatal(err)
-			}
-			al := level3Alert()
-			al.ID = int64(100 + i)
-			al.Level = c.level
-			enqueue(t, pool, al, c.cfg)
-			var got []string
-			for _, r := range outboxRows(t, pool) {
-				got = append(got, r.Channel)
-			}
-			if !slices.Equal(got, c.want) {
-				t.Errorf("channels %v, want %v", got, c.want)
-			}
-		})
-	}
-
-	t.Run("invalid", func(t *testing.T) {
-		for _, al := range []halfmark.Alert{{ID: 0, Level: halfmark.LevelImmediate}, {ID: 5, Level: 7}} {
-			err := pgx.BeginFunc(context.Background(), pool, func(tx pgx.Tx) error {
-				return EnqueueAlert(context.Background(), tx, al, full)
-			})
-			if halfmark.ErrorCodeOf(err) != halfmark.EInvalid {
-				t.Errorf("EnqueueAlert(id %d, level %d) = %v, want EInvalid", al.ID, al.Level, err)
-			}
-		}
-	})
-}
-
 func TestSMTPDownThenUpDeliversExactlyOnce(t *testing.T) {
 	ctx := context.Background()
-	pool := newPool(t)
+	st := newStore(t)
 	srvTLS, cliTLS := testTLS(t)
 	ms := newMailServer(t, srvTLS)
 	ms.Stop() // the port is known, nothing listens on it
 	clk := newClock()
+	st.Now = clk.Now
 	cfg := baseConfig(ms, cliTLS, nil, clk)
-	enqueue(t, pool, level3Alert(), cfg)
-	d := New(pool, cfg, nil)
+	enqueue(t, st, storedFinding(42, halfmark.LevelImmediate), cfg)
+	d := New(st, cfg, nil)
 
 	t0 := clk.Now()
 	n, err := d.RunOnce(ctx)
 	if err == nil || n != 0 {
 		t.Fatalf("RunOnce with the SMTP server down = %d, %v; want 0 and an error", n, err)
 	}
-	rows := outboxRows(t, pool)
+	rows := outboxRows(t, st)
 	if len(rows) != 1 {
 		t.Fatalf("%d rows", len(rows))
 	}
 	r := rows[0]
-	if r.Attempts != 1 || r.DeliveredAt != nil || r.LastError == nil || *r.LastError == "" {
+	if r.Attempts != 1 || r.DeliveredAt != nil || r.LastError == "" {
 		t.Fatalf("after a failure: attempts %d delivered_at %v last_error %v", r.Attempts, r.DeliveredAt, r.LastError)
 	}
 	// First retry delay: d = BaseBackoff, delay ∈ [d/2, d) (equal jitter).
@@ -255,7 +73,7 @@ func TestSMTPDownThenUpDeliversExactlyOnce(t *testing.T) {
 	if n, err := d.RunOnce(ctx); n != 0 || err != nil {
 		t.Fatalf("RunOnce before the retry is due = %d, %v; want 0, nil", n, err)
 	}
-	if rows := outboxRows(t, pool); rows[0].Attempts != 1 {
+	if rows := outboxRows(t, st); rows[0].Attempts != 1 {
 		t.Fatalf("a row that was not due was tried: attempts %d", rows[0].Attempts)
 	}
 
@@ -264,7 +82,7 @@ func TestSMTPDownThenUpDeliversExactlyOnce(t *testing.T) {
 	if _, err := d.RunOnce(ctx); err == nil {
 		t.Fatal("RunOnce with the SMTP server still down succeeded")
 	}
-	r = outboxRows(t, pool)[0]
+	r = outboxRows(t, st)[0]
 	if delay := r.NextAttemptAt.Sub(t1); r.Attempts != 2 || delay < cfg.BaseBackoff || delay >= 2*cfg.BaseBackoff {
 		t.Fatalf("after the second failure: attempts %d, next attempt in %v; want 2 and within [%v, %v)",
 			r.Attempts, delay, cfg.BaseBackoff, 2*cfg.BaseBackoff)
@@ -284,8 +102,8 @@ func TestSMTPDownThenUpDeliversExactlyOnce(t *testing.T) {
 	if got := len(ms.Messages()); got != 1 {
 		t.Fatalf("SMTP server got %d messages, want exactly 1", got)
 	}
-	r = outboxRows(t, pool)[0]
-	if r.DeliveredAt == nil || r.Attempts != 3 || r.LastError != nil {
+	r = outboxRows(t, st)[0]
+	if r.DeliveredAt == nil || r.Attempts != 3 || r.LastError != "" {
 		t.Fatalf("after delivery: delivered_at %v attempts %d last_error %v", r.DeliveredAt, r.Attempts, r.LastError)
 	}
 }
@@ -296,16 +114,17 @@ func TestSMTPDownThenUpDeliversExactlyOnce(t *testing.T) {
 // notification arrives exactly once.
 func TestAnHourOfOutageThenRecovery(t *testing.T) {
 	ctx := context.Background()
-	pool := newPool(t)
+	st := newStore(t)
 	srvTLS, cliTLS := testTLS(t)
 	ms := newMailServer(t, srvTLS)
 	ms.Stop()
 	h := newHook(t)
 	h.down.Store(true)
 	clk := newClock()
+	st.Now = clk.Now
 	cfg := baseConfig(ms, cliTLS, h, clk) // base 30 s, cap 10 min
-	enqueue(t, pool, level3Alert(), cfg)
-	d := New(pool, cfg, nil)
+	enqueue(t, st, storedFinding(42, halfmark.LevelImmediate), cfg)
+	d := New(st, cfg, nil)
 
 	const step = time.Minute
 	lastAttempts := map[string]int{}
@@ -314,19 +133,19 @@ func TestAnHourOfOutageThenRecovery(t *testing.T) {
 		if n, _ := d.RunOnce(ctx); n != 0 {
 			t.Fatalf("minute %d: %d delivered while the receivers are down", minute, n)
 		}
-		for _, r := range outboxRows(t, pool) {
-			if r.Attempts == lastAttempts[r.Key] {
+		for _, r := range outboxRows(t, st) {
+			if r.Attempts == lastAttempts[r.DedupeKey] {
 				continue // not due this minute
 			}
-			if r.Attempts != lastAttempts[r.Key]+1 {
-				t.Fatalf("minute %d: %s went from %d to %d attempts in one run", minute, r.Key, lastAttempts[r.Key], r.Attempts)
+			if r.Attempts != lastAttempts[r.DedupeKey]+1 {
+				t.Fatalf("minute %d: %s went from %d to %d attempts in one run", minute, r.DedupeKey, lastAttempts[r.DedupeKey], r.Attempts)
 			}
-			lastAttempts[r.Key] = r.Attempts
+			lastAttempts[r.DedupeKey] = r.Attempts
 			// d = min(cap, base·2^(n−1)); delay ∈ [d/2, d).
 			dmax := min(cfg.MaxBackoff, cfg.BaseBackoff<<(min(r.Attempts, 20)-1))
 			if delay := r.NextAttemptAt.Sub(now); delay < dmax/2 || delay >= dmax {
 				t.Fatalf("minute %d: %s attempt %d rescheduled %v ahead, want within [%v, %v)",
-					minute, r.Key, r.Attempts, delay, dmax/2, dmax)
+					minute, r.DedupeKey, r.Attempts, delay, dmax/2, dmax)
 			}
 		}
 		clk.Advance(step)
@@ -344,8 +163,8 @@ func TestAnHourOfOutageThenRecovery(t *testing.T) {
 			t.Errorf("%s: %d attempts in an hour of outage, want between 10 and 16", key, n)
 		}
 	}
-	if got := h.refused.Load(); int(got) != lastAttempts["alert:42:level:3:webhook"] {
-		t.Errorf("the webhook receiver refused %d requests, the outbox counted %d attempts", got, lastAttempts["alert:42:level:3:webhook"])
+	if got := h.refused.Load(); int(got) != lastAttempts["finding:42:level:3:webhook"] {
+		t.Errorf("the webhook receiver refused %d requests, the outbox counted %d attempts", got, lastAttempts["finding:42:level:3:webhook"])
 	}
 	if len(ms.Messages()) != 0 || len(h.Requests()) != 0 {
 		t.Fatal("something was delivered during the outage")
@@ -373,22 +192,23 @@ func TestAnHourOfOutageThenRecovery(t *testing.T) {
 		t.Fatalf("after recovery: %d delivered, %d e-mails, %d webhooks; want 2, 1, 1", total, len(ms.Messages()), len(h.Requests()))
 	}
 	verifySignature(t, cfg.WebhookSecret, h.Requests()[0])
-	for _, r := range outboxRows(t, pool) {
-		if r.DeliveredAt == nil || r.Attempts != lastAttempts[r.Key]+1 {
-			t.Errorf("%s: delivered_at %v, attempts %d (want %d)", r.Key, r.DeliveredAt, r.Attempts, lastAttempts[r.Key]+1)
+	for _, r := range outboxRows(t, st) {
+		if r.DeliveredAt == nil || r.Attempts != lastAttempts[r.DedupeKey]+1 {
+			t.Errorf("%s: delivered_at %v, attempts %d (want %d)", r.DedupeKey, r.DeliveredAt, r.Attempts, lastAttempts[r.DedupeKey]+1)
 		}
 	}
 }
 
 func TestGivesUpAfterMaxAttempts(t *testing.T) {
 	ctx := context.Background()
-	pool := newPool(t)
+	st := newStore(t)
 	h := newHook(t)
 	h.down.Store(true)
 	clk := newClock()
+	st.Now = clk.Now
 	cfg := Config{WebhookURL: h.srv.URL, WebhookSecret: "s", MaxAttempts: 3, BaseBackoff: time.Second, MaxBackoff: time.Second, Now: clk.Now}
-	enqueue(t, pool, level3Alert(), cfg)
-	d := New(pool, cfg, nil)
+	enqueue(t, st, storedFinding(42, halfmark.LevelImmediate), cfg)
+	d := New(st, cfg, nil)
 	for i := 0; i < 10; i++ {
 		_, _ = d.RunOnce(ctx)
 		clk.Advance(time.Minute)
@@ -396,8 +216,8 @@ func TestGivesUpAfterMaxAttempts(t *testing.T) {
 	if got := h.refused.Load(); got != 3 {
 		t.Fatalf("%d attempts, want MaxAttempts = 3", got)
 	}
-	r := outboxRows(t, pool)[0]
-	if r.Attempts != 3 || r.DeliveredAt != nil || r.LastError == nil || !strings.Contains(*r.LastError, "503") {
+	r := outboxRows(t, st)[0]
+	if r.Attempts != 3 || r.DeliveredAt != nil || !strings.Contains(r.LastError, "503") {
 		t.Fatalf("given-up row: attempts %d delivered_at %v last_error %v", r.Attempts, r.DeliveredAt, r.LastError)
 	}
 }
@@ -406,17 +226,15 @@ func TestGivesUpAfterMaxAttempts(t *testing.T) {
 // LOCKED each row is sent by exactly one of them.
 func TestConcurrentDeliverersSendEachRowOnce(t *testing.T) {
 	ctx := context.Background()
-	pool := newPool(t)
+	st := newStore(t)
 	srvTLS, cliTLS := testTLS(t)
 	ms := newMailServer(t, srvTLS)
 	h := newHook(t)
 	h.delay = 5 * time.Millisecond // widen the window in which both could pick the same row
 	cfg := baseConfig(ms, cliTLS, h, nil)
-	const alerts = 15
-	for i := 1; i <= alerts; i++ {
-		al := level3Alert()
-		al.ID = int64(i)
-		enqueue(t, pool, al, cfg)
+	const findings = 15
+	for i := 1; i <= findings; i++ {
+		enqueue(t, st, storedFinding(int64(i), halfmark.LevelImmediate), cfg)
 	}
 
 	var wg sync.WaitGroup
@@ -426,7 +244,7 @@ func TestConcurrentDeliverersSendEachRowOnce(t *testing.T) {
 		wg.Add(1)
 		go func() {
 			defer wg.Done()
-			counts[w], errs[w] = New(pool, cfg, nil).RunOnce(ctx)
+			counts[w], errs[w] = New(st, cfg, nil).RunOnce(ctx)
 		}()
 	}
 	wg.Wait()
@@ -435,8 +253,8 @@ func TestConcurrentDeliverersSendEachRowOnce(t *testing.T) {
 			t.Fatalf("deliverer %d: %v", w, err)
 		}
 	}
-	if counts[0]+counts[1] != 2*alerts {
-		t.Fatalf("deliverers delivered %d + %d, want %d in all", counts[0], counts[1], 2*alerts)
+	if counts[0]+counts[1] != 2*findings {
+		t.Fatalf("deliverers delivered %d + %d, want %d in all", counts[0], counts[1], 2*findings)
 	}
 	t.Logf("deliverer shares: %d and %d", counts[0], counts[1])
 
@@ -448,27 +266,29 @@ func TestConcurrentDeliverersSendEachRowOnce(t *testing.T) {
 		verifySignature(t, cfg.WebhookSecret, r)
 		seen[r.Header.Get(HeaderDelivery)]++
 	}
-	if len(seen) != 2*alerts {
-		t.Fatalf("%d distinct notifications arrived, want %d", len(seen), 2*alerts)
+	if len(seen) != 2*findings {
+		t.Fatalf("%d distinct notifications arrived, want %d", len(seen), 2*findings)
 	}
 	for key, n := range seen {
 		if n != 1 {
 			t.Errorf("%s arrived %d times", key, n)
 		}
 	}
-	if n, err := New(pool, cfg, nil).RunOnce(ctx); n != 0 || err != nil {
+	if n, err := New(st, cfg, nil).RunOnce(ctx); n != 0 || err != nil {
 		t.Fatalf("a third RunOnce = %d, %v; want 0, nil", n, err)
 	}
 }
 
 func TestMandatoryTLSRefusesAServerWithoutSTARTTLS(t *testing.T) {
 	ctx := context.Background()
-	pool := newPool(t)
+	st := newStore(t)
 	ms := newMailServer(t, nil) // plain-text server: no STARTTLS offered
-	cfg := baseConfig(ms, nil, nil, nil)
+	clk := newClock()
+	st.Now = clk.Now
+	cfg := baseConfig(ms, nil, nil, clk)
 	cfg.TLSPolicy = "" // the default is mandatory
-	enqueue(t, pool, level3Alert(), cfg)
-	n, err := New(pool, cfg, nil).RunOnce(ctx)
+	enqueue(t, st, storedFinding(42, halfmark.LevelImmediate), cfg)
+	n, err := New(st, cfg, nil).RunOnce(ctx)
 	if err == nil || n != 0 || !strings.Contains(err.Error(), "STARTTLS") {
 		t.Fatalf("RunOnce against a server without STARTTLS = %d, %v; want a STARTTLS error", n, err)
 	}
@@ -478,10 +298,8 @@ func TestMandatoryTLSRefusesAServerWithoutSTARTTLS(t *testing.T) {
 
 	// Clear text only when configured so.
 	cfg.TLSPolicy = TLSNone
-	if _, err := pool.Exec(ctx, "UPDATE outbox SET next_attempt_at = now() - interval '1 s'"); err != nil {
-		t.Fatal(err)
-	}
-	if n, err := New(pool, cfg, nil).RunOnce(ctx); n != 1 || err != nil {
+	clk.Advance(time.Hour) // past the retry
+	if n, err := New(st, cfg, nil).RunOnce(ctx); n != 1 || err != nil {
 		t.Fatalf("RunOnce with TLS policy none = %d, %v", n, err)
 	}
 	if m := ms.Messages(); len(m) != 1 || m[0].TLS {
@@ -491,30 +309,30 @@ func TestMandatoryTLSRefusesAServerWithoutSTARTTLS(t *testing.T) {
 
 func TestSMTPAuthWithoutLeakingThePassword(t *testing.T) {
 	ctx := context.Background()
-	pool := newPool(t)
+	st := newStore(t)
 	srvTLS, cliTLS := testTLS(t)
 	ms := newMailServer(t, srvTLS)
 	ms.user, ms.pw = "halfmark", "correct-horse-battery-staple"
-	cfg := baseConfig(ms, cliTLS, nil, nil)
+	clk := newClock()
+	st.Now = clk.Now
+	cfg := baseConfig(ms, cliTLS, nil, clk)
 	cfg.SMTPUser, cfg.SMTPPassword = "halfmark", "wrong-password-value"
 	log, logs := testLogger(t)
-	enqueue(t, pool, level3Alert(), cfg)
+	enqueue(t, st, storedFinding(42, halfmark.LevelImmediate), cfg)
 
-	if n, err := New(pool, cfg, log).RunOnce(ctx); n != 0 || err == nil {
+	if n, err := New(st, cfg, log).RunOnce(ctx); n != 0 || err == nil {
 		t.Fatalf("RunOnce with a wrong password = %d, %v; want a failure", n, err)
 	} else if strings.Contains(err.Error(), cfg.SMTPPassword) {
 		t.Fatalf("the error carries the password: %v", err)
 	}
-	r := outboxRows(t, pool)[0]
-	if r.LastError == nil || strings.Contains(*r.LastError, cfg.SMTPPassword) {
+	r := outboxRows(t, st)[0]
+	if r.LastError == "" || strings.Contains(r.LastError, cfg.SMTPPassword) {
 		t.Fatalf("last_error %v is missing or carries the password", r.LastError)
 	}
 
 	cfg.SMTPPassword = ms.pw
-	if _, err := pool.Exec(ctx, "UPDATE outbox SET next_attempt_at = now() - interval '1 s'"); err != nil {
-		t.Fatal(err)
-	}
-	d := New(pool, cfg, log)
+	clk.Advance(time.Hour) // past the retry
+	d := New(st, cfg, log)
 	log.Info("deliverer configured", "config", cfg)
 	if n, err := d.RunOnce(ctx); n != 1 || err != nil {
 		t.Fatalf("RunOnce with the right password = %d, %v", n, err)
@@ -534,13 +352,14 @@ func TestSMTPAuthWithoutLeakingThePassword(t *testing.T) {
 
 func TestWebhookNon2xxAndRedirectAreFailures(t *testing.T) {
 	ctx := context.Background()
-	pool := newPool(t)
+	st := newStore(t)
 	h := newHook(t)
 	h.down.Store(true) // answers 503
 	clk := newClock()
+	st.Now = clk.Now
 	cfg := Config{WebhookURL: h.srv.URL + "/hook?token=sekret-token", WebhookSecret: "s", Now: clk.Now}
-	enqueue(t, pool, level3Alert(), cfg)
-	_, err := New(pool, cfg, nil).RunOnce(ctx)
+	enqueue(t, st, storedFinding(42, halfmark.LevelImmediate), cfg)
+	_, err := New(st, cfg, nil).RunOnce(ctx)
 	if err == nil || !strings.Contains(err.Error(), "503") {
 		t.Fatalf("RunOnce against a 503 = %v", err)
 	}
@@ -554,7 +373,7 @@ func TestWebhookNon2xxAndRedirectAreFailures(t *testing.T) {
 	t.Cleanup(redirect.Close)
 	cfg.WebhookURL = redirect.URL
 	clk.Advance(time.Hour)
-	_, err = New(pool, cfg, nil).RunOnce(ctx)
+	_, err = New(st, cfg, nil).RunOnce(ctx)
 	if err == nil || !strings.Contains(err.Error(), "307") {
 		t.Fatalf("RunOnce against a redirect = %v", err)
 	}
@@ -568,24 +387,23 @@ func TestWebhookNon2xxAndRedirectAreFailures(t *testing.T) {
 // rows, on a working receiver, are delivered meanwhile.
 func TestUnreachableSMTPDoesNotHoldUpTheWebhook(t *testing.T) {
 	ctx := context.Background()
-	pool := newPool(t)
+	st := newStore(t)
 	srvTLS, cliTLS := testTLS(t)
 	ms := newMailServer(t, srvTLS)
 	ms.Stop()
 	h := newHook(t)
 	clk := newClock()
+	st.Now = clk.Now
 	cfg := baseConfig(ms, cliTLS, h, clk)
 	for i := int64(1); i <= 3; i++ {
-		al := level3Alert()
-		al.ID = i
-		enqueue(t, pool, al, cfg)
+		enqueue(t, st, storedFinding(i, halfmark.LevelImmediate), cfg)
 	}
-	n, err := New(pool, cfg, nil).RunOnce(ctx)
+	n, err := New(st, cfg, nil).RunOnce(ctx)
 	if n != 3 || err == nil || !strings.Contains(err.Error(), "1 of 4 notifications failed;") {
 		t.Fatalf("RunOnce = %d, %v; want the 3 webhooks delivered and 1 e-mail failure", n, err)
 	}
 	attempts := 0
-	for _, r := range outboxRows(t, pool) {
+	for _, r := range outboxRows(t, st) {
 		if r.Channel == ChannelEmail {
 			attempts += r.Attempts
 		}
@@ -596,7 +414,7 @@ func TestUnreachableSMTPDoesNotHoldUpTheWebhook(t *testing.T) {
 
 	ms.Start()
 	clk.Advance(time.Minute)
-	if n, err := New(pool, cfg, nil).RunOnce(ctx); n != 3 || err != nil {
+	if n, err := New(st, cfg, nil).RunOnce(ctx); n != 3 || err != nil {
 		t.Fatalf("RunOnce with the server back = %d, %v; want the 3 e-mails", n, err)
 	}
 	if len(ms.Messages()) != 3 {
@@ -604,36 +422,88 @@ func TestUnreachableSMTPDoesNotHoldUpTheWebhook(t *testing.T) {
 	}
 }
 
+// lostCommitStore is the real store whose first recording of each row's
+// delivery is lost: the claim's transaction is rolled back instead of
+// committed, as when the process or the database goes away between the
+// send and the commit.
+type lostCommitStore struct {
+	*db.DB
+	mu   sync.Mutex
+	lost map[int64]bool
+}
+
+func (s *lostCommitStore) ClaimOutbox(ctx context.Context, due halfmark.OutboxDue) (halfmark.OutboxClaim, bool, error) {
+	c, ok, err := s.DB.ClaimOutbox(ctx, due)
+	if !ok || err != nil {
+		return c, ok, err
+	}
+	return &lostCommitClaim{OutboxClaim: c, s: s}, true, nil
+}
+
+type lostCommitClaim struct {
+	halfmark.OutboxClaim
+	s *lostCommitStore
+}
+
+func (c *lostCommitClaim) Delivered(ctx context.Context, at time.Time) error {
+	c.s.mu.Lock()
+	first := !c.s.lost[c.Row().ID]
+	c.s.lost[c.Row().ID] = true
+	c.s.mu.Unlock()
+	if first {
+		c.Release(ctx)
+		return errors.New("connection lost before COMMIT (simulated)")
+	}
+	return c.OutboxClaim.Delivered(ctx, at)
+}
+
 // The at-least-once window: a send accepted by the receivers whose
-// delivered_at never committed (simulated by clearing it) is sent again,
-// and the copy carries the same Message-ID and X-Halfmark-Delivery, so the
-// receiving side can recognise it.
+// delivery was never recorded is sent again, and the copy carries the same
+// Message-ID and X-Halfmark-Delivery, so the receiving side can recognise
+// it. This is why the README says at-least-once, not "never twice".
 func TestResendAfterLostCommitCarriesTheSameIdentity(t *testing.T) {
 	ctx := context.Background()
-	pool := newPool(t)
+	st := newStore(t)
 	srvTLS, cliTLS := testTLS(t)
 	ms := newMailServer(t, srvTLS)
 	h := newHook(t)
 	cfg := baseConfig(ms, cliTLS, h, nil)
-	enqueue(t, pool, level3Alert(), cfg)
-	d := New(pool, cfg, nil)
-	if n, err := d.RunOnce(ctx); n != 2 || err != nil {
-		t.Fatalf("RunOnce = %d, %v", n, err)
+	enqueue(t, st, storedFinding(42, halfmark.LevelImmediate), cfg)
+	d := New(&lostCommitStore{DB: st, lost: map[int64]bool{}}, cfg, nil)
+	// The e-mail is accepted but its recording is lost: RunOnce stops with
+	// a store error (EUnavailable) and the row stays undelivered.
+	n, err := d.RunOnce(ctx)
+	if n != 0 || halfmark.ErrorCodeOf(err) != halfmark.EUnavailable {
+		t.Fatalf("RunOnce with a lost commit = %d, %v; want 0 and EUnavailable", n, err)
 	}
-	if _, err := pool.Exec(ctx, "UPDATE outbox SET delivered_at = NULL, next_attempt_at = now() - interval '1 s'"); err != nil {
-		t.Fatal(err)
+	for _, r := range outboxRows(t, st) {
+		if r.DeliveredAt != nil || r.Attempts != 0 {
+			t.Fatalf("row %s after a lost commit: delivered_at %v attempts %d; want undelivered, 0", r.DedupeKey, r.DeliveredAt, r.Attempts)
+		}
 	}
-	if n, err := d.RunOnce(ctx); n != 2 || err != nil {
-		t.Fatalf("replay RunOnce = %d, %v", n, err)
+	// The e-mail goes again (recorded this time); the webhook's first
+	// recording is lost.
+	if n, err := d.RunOnce(ctx); n != 1 || halfmark.ErrorCodeOf(err) != halfmark.EUnavailable {
+		t.Fatalf("second RunOnce = %d, %v; want 1 and EUnavailable", n, err)
+	}
+	if n, err := d.RunOnce(ctx); n != 1 || err != nil {
+		t.Fatalf("third RunOnce = %d, %v; want 1, nil", n, err)
 	}
 	msgs, reqs := ms.Messages(), h.Requests()
 	if len(msgs) != 2 || len(reqs) != 2 {
-		t.Fatalf("%d e-mails, %d webhooks; want 2 and 2", len(msgs), len(reqs))
+		t.Fatalf("%d e-mails, %d webhooks; want 2 and 2 (each sent once more after its lost commit)", len(msgs), len(reqs))
 	}
 	if a, b := msgs[0].Header(t, "Message-ID"), msgs[1].Header(t, "Message-ID"); a == "" || a != b {
 		t.Errorf("Message-IDs %q and %q differ", a, b)
 	}
-	if a, b := reqs[0].Header.Get(HeaderDelivery), reqs[1].Header.Get(HeaderDelivery); a == "" || a != b {
-		t.Errorf("%s %q and %q differ", HeaderDelivery, a, b)
+	if a, b := msgs[0].Header(t, HeaderDelivery), msgs[1].Header(t, HeaderDelivery); a != "finding:42:level:3:email" || a != b {
+		t.Errorf("e-mail %s %q and %q, want both finding:42:level:3:email", HeaderDelivery, a, b)
+	}
+	if a, b := reqs[0].Header.Get(HeaderDelivery), reqs[1].Header.Get(HeaderDelivery); a != "finding:42:level:3:webhook" || a != b {
+		t.Errorf("webhook %s %q and %q, want both finding:42:level:3:webhook", HeaderDelivery, a, b)
+	}
+	// Once recorded, nothing more is sent.
+	if n, err := d.RunOnce(ctx); n != 0 || err != nil {
+		t.Fatalf("RunOnce after delivery = %d, %v; want 0, nil", n, err)
 	}
 }

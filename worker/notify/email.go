@@ -8,6 +8,8 @@ import (
 	"time"
 
 	gomail "github.com/wneessen/go-mail"
+
+	"halfmark"
 )
 
 // goMailTLSPolicy maps Config.TLSPolicy onto go-mail's policy; anything
@@ -65,8 +67,10 @@ func (d *Deliverer) smtpClient() (*gomail.Client, error) {
 }
 
 // sendEmail sends one outbox e-mail. The Message-ID is derived from the
-// dedupe key, so a copy sent again after a crash carries the same ID.
-func (d *Deliverer) sendEmail(ctx context.Context, r claimedRow, now time.Time) error {
+// dedupe key and the X-Halfmark-Delivery header is the key itself, so a
+// copy sent again (delivery is at-least-once) carries the same identity
+// and the receiving side can drop it.
+func (d *Deliverer) sendEmail(ctx context.Context, r halfmark.OutboxRow, now time.Time) error {
 	if d.cfg.From == "" {
 		return errors.New("no sender address is configured (HALFMARK_SMTP_FROM)")
 	}
@@ -74,15 +78,15 @@ func (d *Deliverer) sendEmail(ctx context.Context, r claimedRow, now time.Time) 
 	if err := m.From(d.cfg.From); err != nil {
 		return fmt.Errorf("sender address %q: %w", d.cfg.From, err)
 	}
-	if err := m.To(r.recipients...); err != nil {
-		return fmt.Errorf("recipients %v: %w", r.recipients, err)
+	if err := m.To(r.Recipients...); err != nil {
+		return fmt.Errorf("recipients %v: %w", r.Recipients, err)
 	}
-	m.Subject(r.subject)
-	m.SetBodyString(gomail.TypeTextPlain, r.body)
-	m.SetMessageIDWithValue(messageID(r.dedupeKey, d.cfg))
+	m.Subject(r.Subject)
+	m.SetBodyString(gomail.TypeTextPlain, r.Body)
+	m.SetMessageIDWithValue(messageID(r.DedupeKey, d.cfg))
 	m.SetDateWithValue(now)
 	m.SetGenHeader("Auto-Submitted", "auto-generated") // RFC 3834 §5: no auto-replies
-	m.SetGenHeader(HeaderDelivery, r.dedupeKey)
+	m.SetGenHeader(HeaderDelivery, r.DedupeKey)
 	cl, err := d.smtpClient()
 	if err != nil {
 		return &channelDownError{channel: ChannelEmail, err: err}

@@ -29,8 +29,6 @@ import (
 
 	"github.com/emersion/go-sasl"
 	"github.com/emersion/go-smtp"
-	"github.com/jackc/pgx/v5"
-	"github.com/jackc/pgx/v5/pgxpool"
 
 	"halfmark"
 	"halfmark/db"
@@ -39,59 +37,72 @@ import (
 
 func TestMain(m *testing.M) { dbtest.Main(m) }
 
-// newPool gives the test a migrated throw-away database.
-func newPool(t *testing.T) *pgxpool.Pool {
+// newStore gives the test a migrated throw-away database.
+func newStore(t *testing.T) *db.DB {
 	t.Helper()
 	url := dbtest.New(t)
 	ctx := context.Background()
 	if err := db.Migrate(ctx, url, nil); err != nil {
 		t.Fatalf("migrate: %v", err)
 	}
-	pool, err := pgxpool.New(ctx, url)
+	st, err := db.Open(ctx, url)
 	if err != nil {
-		t.Fatalf("pool: %v", err)
+		t.Fatalf("open: %v", err)
 	}
-	t.Cleanup(pool.Close)
-	return pool
+	t.Cleanup(st.Close)
+	return st
 }
 
-// enqueue runs EnqueueAlert in its own committed transaction.
-func enqueue(t *testing.T, pool *pgxpool.Pool, al halfmark.Alert, cfg Config) {
+// newMachine stores a machine of the invented demo clinic and returns its id.
+func newMachine(t *testing.T, st *db.DB, name string) int64 {
 	t.Helper()
-	err := pgx.BeginFunc(context.Background(), pool, func(tx pgx.Tx) error {
-		return EnqueueAlert(context.Background(), tx, al, cfg)
-	})
-	if err != nil {
-		t.Fatalf("EnqueueAlert: %v", err)
+	m := halfmark.Machine{Name: name, SADcm: 100, MLCLeafPairs: 60, Clinical: true}
+	if err := st.CreateMachine(context.Background(), halfmark.CLIActor("test"), &m); err != nil {
+		t.Fatalf("create machine %s: %v", name, err)
+	}
+	return m.ID
+}
+
+// record stores one machine evaluation holding the given component
+// verdicts (no series verdicts) through the real store, with n composing
+// the notifications inside its transaction.
+func record(t *testing.T, st *db.DB, machineID int64, at time.Time, n halfmark.FindingNotifier, cs ...halfmark.ComponentVerdict) {
+	t.Helper()
+	ev := &halfmark.MachineEvaluation{MachineID: machineID, At: at, ToleranceHash: "test", Components: cs}
+	if err := st.RecordMachineEvaluation(context.Background(), ev, n); err != nil {
+		t.Fatalf("RecordMachineEvaluation: %v", err)
 	}
 }
 
-type outboxState struct {
-	ID            int64
-	Channel       string
-	Key           string
-	Attempts      int
-	NextAttemptAt time.Time
-	DeliveredAt   *time.Time
-	LastError     *string
-}
-
-func outboxRows(t *testing.T, pool *pgxpool.Pool) []outboxState {
+// activeFinding returns the machine's one active finding.
+func activeFinding(t *testing.T, st *db.DB, machineID int64) halfmark.Finding {
 	t.Helper()
-	rows, err := pool.Query(context.Background(),
-		`SELECT id, channel, dedupe_key, attempts, next_attempt_at, delivered_at, last_error FROM outbox ORDER BY id`)
+	fs, err := st.Findings(context.Background(), halfmark.FindingFilter{MachineID: machineID})
 	if err != nil {
 		t.Fatal(err)
 	}
-	out, err := pgx.CollectRows(rows, func(r pgx.CollectableRow) (outboxState, error) {
-		var s outboxState
-		err := r.Scan(&s.ID, &s.Channel, &s.Key, &s.Attempts, &s.NextAttemptAt, &s.DeliveredAt, &s.LastError)
-		return s, err
-	})
+	if len(fs) != 1 {
+		t.Fatalf("machine %d has %d active findings, want 1", machineID, len(fs))
+	}
+	return fs[0]
+}
+
+// enqueue writes a stored finding's notifications (as composed by cfg)
+// into the outbox through the store, as the delivery tests need them.
+func enqueue(t *testing.T, st *db.DB, f halfmark.Finding, cfg Config) {
+	t.Helper()
+	if err := st.EnqueueNotifications(context.Background(), NewComposer(cfg).FindingNotifications(f)); err != nil {
+		t.Fatalf("EnqueueNotifications: %v", err)
+	}
+}
+
+func outboxRows(t *testing.T, st *db.DB) []halfmark.OutboxRow {
+	t.Helper()
+	rows, err := st.OutboxRows(context.Background(), 0)
 	if err != nil {
 		t.Fatal(err)
 	}
-	return out
+	return rows
 }
 
 // clock is a simulated clock for Config.Now.
@@ -422,16 +433,38 @@ func (s *syncBuffer) String() string {
 
 func ptr[T any](v T) *T { return &v }
 
-// level3Alert is a jaw edge beyond its action limit.
-func level3Alert() halfmark.Alert {
-	opened := time.Date(2026, 12, 1, 7, 42, 0, 0, time.UTC)
-	return halfmark.Alert{
-		ID: 42, MachineID: 3, MachineName: "Linac A", BeamID: 7, BeamLabel: "6 MV",
-		SeriesID: ptr(int64(11)), Edge: "X2", Quantity: halfmark.QPosition, Geometry: "SSD 100 cm, 10x10 cm",
-		Family: "limit", Rule: "beyond action limit", Level: halfmark.LevelImmediate, State: halfmark.AlertOpen,
-		Message:     "X2 jaw of Linac A 6 MV is 2.40 mm from baseline, beyond the 2.00 mm action limit.",
-		DeviationMM: ptr(2.4), ToleranceMM: ptr(1.0), ActionMM: ptr(2.0),
-		ProjectedCrossing: ptr(time.Date(2026, 12, 9, 0, 0, 0, 0, time.UTC)),
-		OpenedAt:          opened, UpdatedAt: opened,
+// bankFinding is the invented scenario's MLC fault: bank 2 of Heron
+// offset outward after a service, seen in the EPID images of two beams.
+// Values are invented for the test.
+func bankFinding(level halfmark.Level) halfmark.Finding {
+	onset := time.Date(2026, 11, 17, 0, 0, 0, 0, time.UTC)
+	return halfmark.Finding{
+		Component: halfmark.Component{Kind: halfmark.ComponentMLCBank, Name: "bank 2"},
+		Direction: 1, Level: level,
+		MagnitudeMM: 0.9, MagnitudeCIMM: [2]float64{0.72, 1.08},
+		Onset:    &onset,
+		Crossing: halfmark.FindingCrossing{Status: halfmark.CrossingAlreadyBeyond},
+		Evidence: []halfmark.Evidence{
+			{SeriesID: 101, Beam: "6 MV", Geometry: "SSD 100 cm, 20x20 cm", Method: halfmark.MethodEPID, Edge: "B2P29",
+				Quantity: halfmark.QPosition, Rules: []string{"limit", "cusum"}, Level: level, DeviationMM: ptr(0.95)},
+			{SeriesID: 102, Beam: "10 MV FFF", Geometry: "SSD 100 cm, 20x20 cm", Method: halfmark.MethodEPID, Edge: "B2P30",
+				Quantity: halfmark.QPosition, Rules: []string{"shewhart"}, Level: halfmark.LevelInspect, DeviationMM: ptr(0.88)},
+		},
+		Message: "The mean of MLC bank 2 is 0.90 mm outward of its baseline since 2026-11-17.",
 	}
+}
+
+// verdict is an active component verdict for f.
+func verdict(f halfmark.Finding) halfmark.ComponentVerdict {
+	return halfmark.ComponentVerdict{Finding: f, Active: true}
+}
+
+// storedFinding is bankFinding as the store returns it, for tests that
+// enqueue directly.
+func storedFinding(id int64, level halfmark.Level) halfmark.Finding {
+	f := bankFinding(level)
+	f.ID, f.MachineID, f.Machine, f.State = id, 2, "Heron", halfmark.FindingOpen
+	f.OpenedAt = time.Date(2026, 12, 1, 7, 42, 0, 0, time.UTC)
+	f.UpdatedAt = f.OpenedAt
+	return f
 }

@@ -14,110 +14,139 @@ import (
 // SafetyCaution ends every e-mail.
 const SafetyCaution = "Halfmark's results support, and never replace, the judgement of a qualified medical physicist; tolerances are set locally."
 
-// alertSubject is "[Halfmark] Level 3 — immediate action: Linac A 6 MV X2".
-func alertSubject(al halfmark.Alert) string {
-	parts := []string{machineName(al), beamLabel(al)}
-	if al.Edge != "" {
-		parts = append(parts, al.Edge)
-	}
-	return "[Halfmark] " + al.Level.String() + ": " + strings.Join(parts, " ")
+// findingSubject is "[Halfmark] Level 2 — scheduled action: Heron MLC bank 2".
+func findingSubject(f halfmark.Finding) string {
+	return "[Halfmark] " + f.Level.String() + ": " + machineName(f) + " " + componentLabel(f.Component)
 }
 
-// alertBody is the plain-text e-mail for one alert: where, what, how far
-// from baseline against the limits, which rule, how soon, and where to look.
-func alertBody(al halfmark.Alert, cfg Config) string {
+// levelMeaning is what a level asks of the physicist, after the three
+// action levels of AAPM TG-142 (E. E. Klein et al., "Task Group 142 report:
+// Quality assurance of medical accelerators", Med Phys 36:4197–4212, 2009):
+// inspection, scheduled action (within one or two working days), immediate
+// action (stop treatment). Tolerance and action limits are set locally.
+func levelMeaning(l halfmark.Level) string {
+	switch l {
+	case halfmark.LevelInspect:
+		return "a signal still inside tolerance: inspect; no correction is required yet"
+	case halfmark.LevelScheduled:
+		return "beyond tolerance: schedule a correction within one or two working days"
+	case halfmark.LevelImmediate:
+		return "beyond the action limit: immediate action; stop treating with the affected function until it is corrected"
+	}
+	return "in control"
+}
+
+// findingBody is the plain-text e-mail for one finding: which machine and
+// component, how serious, how large (with its 95% interval), since when,
+// when it crosses its limits, which series show it, where to look, and the
+// safety caution.
+func findingBody(f halfmark.Finding, cfg Config) string {
 	loc := cfg.loc()
 	var b strings.Builder
-	fmt.Fprintf(&b, "%s on %s, beam %s", al.Level, machineName(al), beamLabel(al))
-	if al.Edge != "" {
-		fmt.Fprintf(&b, ", %s %s", edgeWord(al.Edge), al.Edge)
+	fmt.Fprintf(&b, "%s on %s: %s.\n\n", f.Level, machineName(f), componentLabel(f.Component))
+	row := func(k, v string) { fmt.Fprintf(&b, "%-12s %s\n", k+":", v) }
+	row("Machine", machineName(f))
+	row("Component", componentLabel(f.Component))
+	row("Level", f.Level.String()+" ("+levelMeaning(f.Level)+")")
+	row("Magnitude", magnitudeText(f))
+	row("Onset", onsetText(f.Onset, loc))
+	row("Crossing", crossingText(f.Crossing, loc))
+	if f.State != "" {
+		row("State", string(f.State))
 	}
-	b.WriteString(".\n\n")
-	row := func(k, v string) { fmt.Fprintf(&b, "%-20s %s\n", k+":", v) }
-	row("Machine", machineName(al))
-	row("Beam", beamLabel(al))
-	if al.Edge != "" {
-		row(capitalize(edgeWord(al.Edge)), al.Edge)
-	} else {
-		row("Edge", "none (beam-level alert)")
+	if !f.OpenedAt.IsZero() {
+		row("Opened", f.OpenedAt.In(loc).Format("2006-01-02 15:04 MST"))
 	}
-	if al.Quantity != "" {
-		row("Quantity", quantityLabel(al.Quantity))
-	}
-	if al.Geometry != "" {
-		row("Setup", al.Geometry)
-	}
-	rule := al.Rule
-	if al.Family != "" && al.Family != al.Rule {
-		rule += " (" + al.Family + ")"
-	}
-	row("Rule", rule)
-	row("From baseline", deviationText(al.DeviationMM, al.ToleranceMM, al.ActionMM))
-	if al.ProjectedCrossing != nil {
-		row("Projected crossing", al.ProjectedCrossing.In(loc).Format("2006-01-02"))
-	}
-	if !al.OpenedAt.IsZero() {
-		row("Opened", al.OpenedAt.In(loc).Format("2006-01-02 15:04 MST"))
-	}
-	if al.State != "" {
-		row("State", string(al.State))
-	}
-	if al.Message != "" {
+	if f.Message != "" {
 		b.WriteString("\n")
-		b.WriteString(al.Message)
+		b.WriteString(f.Message)
 		b.WriteString("\n")
 	}
 	b.WriteString("\n")
-	b.WriteString(dashboardLine(cfg, "Open the alert", "/alerts/"+strconv.FormatInt(al.ID, 10)))
+	writeEvidence(&b, f.Evidence, "")
+	b.WriteString("\n")
+	b.WriteString(dashboardLine(cfg, "Open the finding", findingPath(f.ID)))
+	if f.MachineID > 0 {
+		b.WriteString(dashboardLine(cfg, "Open the machine", "/machines/"+strconv.FormatInt(f.MachineID, 10)))
+	}
 	b.WriteString("\n-- \n")
 	b.WriteString(SafetyCaution)
 	b.WriteString("\n")
 	return b.String()
 }
 
-// digestSubject is "[Halfmark] Level 1 — inspection: daily digest 2026-12-02, 2 alerts".
+// writeEvidence lists the series behind a finding, one per line.
+func writeEvidence(b *strings.Builder, ev []halfmark.Evidence, indent string) {
+	if len(ev) == 0 {
+		b.WriteString(indent + "Evidence: no series listed.\n")
+		return
+	}
+	fmt.Fprintf(b, "%sEvidence (%d %s):\n", indent, len(ev), plural(len(ev), "series", "series"))
+	for _, e := range ev {
+		var parts []string
+		add := func(k, v string) {
+			if v != "" {
+				parts = append(parts, k+" "+v)
+			}
+		}
+		add("beam", e.Beam)
+		add("setup", e.Geometry)
+		add("method", string(e.Method))
+		add("edge", e.Edge)
+		if e.Quantity != "" {
+			parts = append(parts, quantityLabel(e.Quantity))
+		}
+		line := fmt.Sprintf("%s- series %d: %s", indent, e.SeriesID, strings.Join(parts, ", "))
+		rules := "none named"
+		if len(e.Rules) > 0 {
+			rules = strings.Join(e.Rules, ", ")
+		}
+		line += "; rules " + rules
+		if e.DeviationMM != nil {
+			line += "; " + signedMM(*e.DeviationMM) + " from baseline"
+		}
+		b.WriteString(line + "\n")
+	}
+}
+
+// digestSubject is "[Halfmark] Level 1 — inspection: daily digest 2026-12-02, 2 findings".
 func digestSubject(day string, n int) string {
-	noun := "alerts"
-	if n == 1 {
-		noun = "alert"
-	}
-	return fmt.Sprintf("[Halfmark] %s: daily digest %s, %d %s", halfmark.LevelInspect, day, n, noun)
+	return fmt.Sprintf("[Halfmark] %s: daily digest %s, %d %s", halfmark.LevelInspect, day, n, plural(n, "finding", "findings"))
 }
 
-// digestBody lists the Level 1 alerts still open or acknowledged on day.
-func digestBody(day string, alerts []halfmark.Alert, cfg Config) string {
+// digestBody lists the Level 1 findings still active on day, each with a
+// link to its page, and ends with a link to the findings list.
+func digestBody(day string, fs []halfmark.Finding, cfg Config) string {
 	loc := cfg.loc()
 	var b strings.Builder
-	fmt.Fprintf(&b, "Daily digest for %s: %d %s at %s, open or acknowledged.\n", day, len(alerts), plural(len(alerts), "alert", "alerts"), halfmark.LevelInspect)
-	b.WriteString("Level 1 signals are statistical or trend signals still inside tolerance: inspect, no action is required yet.\n\n")
-	for i, al := range alerts {
-		fmt.Fprintf(&b, "%d. %s, beam %s", i+1, machineName(al), beamLabel(al))
-		if al.Edge != "" {
-			fmt.Fprintf(&b, ", %s %s", edgeWord(al.Edge), al.Edge)
+	fmt.Fprintf(&b, "Daily digest for %s: %d %s at %s, open or acknowledged.\n", day, len(fs), plural(len(fs), "finding", "findings"), halfmark.LevelInspect)
+	b.WriteString("Level 1 findings are " + levelMeaning(halfmark.LevelInspect) + ".\n\n")
+	for i, f := range fs {
+		fmt.Fprintf(&b, "%d. %s, %s (finding %d, %s)\n", i+1, machineName(f), componentLabel(f.Component), f.ID, f.State)
+		fmt.Fprintf(&b, "   Magnitude: %s\n", magnitudeText(f))
+		fmt.Fprintf(&b, "   Onset: %s\n", onsetText(f.Onset, loc))
+		fmt.Fprintf(&b, "   Crossing: %s\n", crossingText(f.Crossing, loc))
+		if !f.OpenedAt.IsZero() {
+			fmt.Fprintf(&b, "   Opened: %s\n", f.OpenedAt.In(loc).Format("2006-01-02 15:04 MST"))
 		}
-		if al.Quantity != "" {
-			fmt.Fprintf(&b, ", %s", quantityLabel(al.Quantity))
+		if f.Message != "" {
+			fmt.Fprintf(&b, "   %s\n", f.Message)
 		}
-		fmt.Fprintf(&b, "\n   Rule: %s\n", al.Rule)
-		fmt.Fprintf(&b, "   From baseline: %s\n", deviationText(al.DeviationMM, al.ToleranceMM, al.ActionMM))
-		if al.ProjectedCrossing != nil {
-			fmt.Fprintf(&b, "   Projected crossing: %s\n", al.ProjectedCrossing.In(loc).Format("2006-01-02"))
-		}
-		fmt.Fprintf(&b, "   Opened %s, %s (alert %d)\n", al.OpenedAt.In(loc).Format("2006-01-02 15:04 MST"), al.State, al.ID)
-		if al.Message != "" {
-			fmt.Fprintf(&b, "   %s\n", al.Message)
-		}
+		writeEvidence(&b, f.Evidence, "   ")
 		if cfg.DashboardURL != "" {
-			fmt.Fprintf(&b, "   %s/alerts/%d\n", cfg.DashboardURL, al.ID)
+			fmt.Fprintf(&b, "   %s%s\n", strings.TrimRight(cfg.DashboardURL, "/"), findingPath(f.ID))
 		}
 		b.WriteString("\n")
 	}
-	b.WriteString(dashboardLine(cfg, "All alerts", "/alerts"))
+	b.WriteString(dashboardLine(cfg, "All findings", "/findings"))
 	b.WriteString("\n-- \n")
 	b.WriteString(SafetyCaution)
 	b.WriteString("\n")
 	return b.String()
 }
+
+// findingPath is the dashboard page of a finding, "/findings/42".
+func findingPath(id int64) string { return "/findings/" + strconv.FormatInt(id, 10) }
 
 func dashboardLine(cfg Config, what, path string) string {
 	if cfg.DashboardURL == "" {
@@ -126,48 +155,104 @@ func dashboardLine(cfg Config, what, path string) string {
 	return what + ": " + strings.TrimRight(cfg.DashboardURL, "/") + path + "\n"
 }
 
-// deviationText is "+2.40 mm (tolerance ±1.00 mm, action limit ±2.00 mm)".
-func deviationText(dev, tol, action *float64) string {
-	s := "not available"
-	if dev != nil {
-		s = strconv.FormatFloat(*dev, 'f', 2, 64) + " mm"
-		if *dev >= 0 {
-			s = "+" + s
-		}
+// componentLabel names a component as people say it: "jaw Y2", "MLC bank
+// 2", "leaf B2P29", "penumbra of 6 MV FFF", "light field X1".
+func componentLabel(c halfmark.Component) string {
+	switch c.Kind {
+	case halfmark.ComponentJaw:
+		return "jaw " + c.Name
+	case halfmark.ComponentMLCBank:
+		return "MLC " + c.Name
+	case halfmark.ComponentMLCLeaf:
+		return "leaf " + c.Name
+	case halfmark.ComponentPenumbra:
+		return "penumbra of " + c.Name
+	case halfmark.ComponentLightField:
+		return "light field " + c.Name
 	}
-	var lim []string
-	if tol != nil {
-		lim = append(lim, "tolerance ±"+strconv.FormatFloat(*tol, 'f', 2, 64)+" mm")
+	return strings.TrimSpace(string(c.Kind) + " " + c.Name)
+}
+
+// magnitudeText is "+0.90 mm outward (95% interval +0.72 to +1.08 mm)";
+// positive is outward, or wider for a penumbra (the edge convention).
+func magnitudeText(f halfmark.Finding) string {
+	s := signedMM(f.MagnitudeMM)
+	out, in := "outward", "inward"
+	if f.Kind == halfmark.ComponentPenumbra {
+		out, in = "wider", "narrower"
 	}
-	if action != nil {
-		lim = append(lim, "action limit ±"+strconv.FormatFloat(*action, 'f', 2, 64)+" mm")
+	switch {
+	case f.MagnitudeMM > 0:
+		s += " " + out
+	case f.MagnitudeMM < 0:
+		s += " " + in
 	}
-	if len(lim) > 0 {
-		s += " (" + strings.Join(lim, ", ") + ")"
+	lo, hi := f.MagnitudeCIMM[0], f.MagnitudeCIMM[1]
+	if lo != 0 || hi != 0 {
+		s += " (95% interval " + signedNum(lo) + " to " + signedNum(hi) + " mm)"
 	}
 	return s
 }
 
-func machineName(al halfmark.Alert) string {
-	if al.MachineName != "" {
-		return al.MachineName
+func onsetText(t *time.Time, loc *time.Location) string {
+	if t == nil {
+		return "not estimated"
 	}
-	return "machine " + strconv.FormatInt(al.MachineID, 10)
+	return t.In(loc).Format(time.DateOnly)
 }
 
-func beamLabel(al halfmark.Alert) string {
-	if al.BeamLabel != "" {
-		return al.BeamLabel
+// crossingText states the crossing status; a date appears only for a
+// projected crossing.
+func crossingText(c halfmark.FindingCrossing, loc *time.Location) string {
+	switch c.Status {
+	case halfmark.CrossingAlreadyBeyond:
+		return "already beyond tolerance"
+	case halfmark.CrossingNotSignificant:
+		return "no significant trend since the onset"
+	case halfmark.CrossingBeyondHorizon:
+		return "the trend reaches tolerance only beyond the projection horizon"
+	case halfmark.CrossingProjected:
+		if c.ToleranceDate == nil {
+			return "projected (no date given)"
+		}
+		s := "projected to reach tolerance on " + c.ToleranceDate.In(loc).Format(time.DateOnly)
+		lo, hi := c.ToleranceInterval[0], c.ToleranceInterval[1]
+		if lo != nil || hi != nil {
+			s += " (95% interval " + dateOr(lo, loc, "open") + " to " + dateOr(hi, loc, "open") + ")"
+		}
+		if c.ActionDate != nil {
+			s += ", the action limit on " + c.ActionDate.In(loc).Format(time.DateOnly)
+		}
+		return s
+	case "":
+		return "not stated"
 	}
-	return "beam " + strconv.FormatInt(al.BeamID, 10)
+	return c.Status
 }
 
-// edgeWord is "edges" for a pair such as "X1+X2", else "edge".
-func edgeWord(edge string) string {
-	if strings.Contains(edge, "+") {
-		return "edges"
+func dateOr(t *time.Time, loc *time.Location, none string) string {
+	if t == nil {
+		return none
 	}
-	return "edge"
+	return t.In(loc).Format(time.DateOnly)
+}
+
+// signedMM is "+0.90 mm" / "-0.35 mm".
+func signedMM(v float64) string { return signedNum(v) + " mm" }
+
+func signedNum(v float64) string {
+	s := strconv.FormatFloat(v, 'f', 2, 64)
+	if v >= 0 {
+		s = "+" + s
+	}
+	return s
+}
+
+func machineName(f halfmark.Finding) string {
+	if f.Machine != "" {
+		return f.Machine
+	}
+	return "machine " + strconv.FormatInt(f.MachineID, 10)
 }
 
 func quantityLabel(q halfmark.Quantity) string {
@@ -180,13 +265,6 @@ func quantityLabel(q halfmark.Quantity) string {
 		return "light–radiation edge offset"
 	}
 	return string(q)
-}
-
-func capitalize(s string) string {
-	if s == "" {
-		return s
-	}
-	return strings.ToUpper(s[:1]) + s[1:]
 }
 
 func plural(n int, one, many string) string {

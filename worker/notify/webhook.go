@@ -13,16 +13,19 @@ import (
 	"net/http"
 	"net/url"
 	"time"
+
+	"halfmark"
 )
 
 // Webhook headers. A receiver verifies X-Halfmark-Signature by computing
 // the HMAC-SHA256 (RFC 2104, FIPS 198-1) of the raw request body with the
 // shared secret, and drops a repeated X-Halfmark-Delivery it has already
-// processed.
+// processed: delivery is at-least-once, and a copy sent again after a lost
+// commit carries the same delivery key.
 const (
 	HeaderSignature = "X-Halfmark-Signature" // "sha256=<hex HMAC-SHA256 of the body>"
 	HeaderDelivery  = "X-Halfmark-Delivery"  // the outbox dedupe key, stable across retries
-	HeaderEvent     = "X-Halfmark-Event"     // "alert" or "digest"
+	HeaderEvent     = "X-Halfmark-Event"     // "finding" or "digest"
 )
 
 // Sign returns the X-Halfmark-Signature value of body:
@@ -60,8 +63,8 @@ func newWebhookClient() *http.Client {
 }
 
 // postWebhook POSTs the signed body; any 2xx answer is a delivery.
-func (d *Deliverer) postWebhook(ctx context.Context, r claimedRow, sentAt time.Time) error {
-	body, event, err := webhookBody(r.payload, sentAt)
+func (d *Deliverer) postWebhook(ctx context.Context, r halfmark.OutboxRow, sentAt time.Time) error {
+	body, event, err := webhookBody(r.Payload, sentAt)
 	if err != nil {
 		return err
 	}
@@ -78,7 +81,7 @@ func (d *Deliverer) postWebhook(ctx context.Context, r claimedRow, sentAt time.T
 	req.Header.Set("Content-Type", "application/json")
 	req.Header.Set("User-Agent", "Halfmark-Notify/1")
 	req.Header.Set(HeaderSignature, Sign(d.cfg.WebhookSecret, body))
-	req.Header.Set(HeaderDelivery, r.dedupeKey)
+	req.Header.Set(HeaderDelivery, r.DedupeKey)
 	if event != "" {
 		req.Header.Set(HeaderEvent, event)
 	}

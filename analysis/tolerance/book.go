@@ -1,8 +1,14 @@
-package worker
+// Package tolerance reads the tolerance book: the local physicist's
+// tolerance and action limits for every quantity Halfmark judges, the chart
+// designs of the drift engine ([detection]) and the words shown with a
+// Level 2 or 3 verdict ([entry]). The shipped example (example.toml, AAPM
+// TG-142 values with local choices marked) is embedded in the binary.
+package tolerance
 
 import (
 	"bytes"
 	"crypto/sha256"
+	_ "embed"
 	"encoding/hex"
 	"errors"
 	"fmt"
@@ -13,29 +19,31 @@ import (
 	"github.com/BurntSushi/toml"
 
 	"halfmark"
-	"halfmark/deploy"
 )
 
-// Quantities a tolerance book may set beyond the per-edge ones
-// (halfmark.QPosition, QPenumbra, QLightOffset).
-const (
-	QFieldSize    halfmark.Quantity = "field_size"    // X1 + X2 (or Y1 + Y2), mm
-	QCentreOffset halfmark.Quantity = "centre_offset" // (X2 − X1)/2, mm
-	QMLCLeaf      halfmark.Quantity = "mlc_leaf"      // one MLC leaf end position, mm
-	QMLCBankMean  halfmark.Quantity = "mlc_bank_mean" // mean deviation of a bank's leaf ends, mm
-)
+// Example is example.toml: the book in force when no --tolerances file is
+// given.
+//
+//go:embed example.toml
+var Example []byte
 
 var bookQuantities = []halfmark.Quantity{halfmark.QPosition, halfmark.QPenumbra, halfmark.QLightOffset,
-	QFieldSize, QCentreOffset, QMLCLeaf, QMLCBankMean}
+	halfmark.QFieldSize, halfmark.QCentreOffset, halfmark.QMLCLeaf, halfmark.QMLCBankMean}
 
-// Tolerances is a tolerance book read from TOML (see
-// deploy/tolerances.example.toml for the format). It implements
-// halfmark.ToleranceBook and is immutable once loaded.
-type Tolerances struct {
-	entries []toleranceEntry
-	hash    string
-	source  string
-	shipped bool
+// DefaultInstruction is the text shown with a Level 2 or 3 verdict when the
+// book's [entry] table sets none (a local choice, stated as such).
+const DefaultInstruction = "Repeat the measurement and inform physics before treating."
+
+// Book is a tolerance book read from TOML (see example.toml for the
+// format). It implements halfmark.ToleranceBook and is immutable once
+// loaded.
+type Book struct {
+	entries     []toleranceEntry
+	detection   map[string]any
+	instruction string
+	hash        string
+	source      string
+	shipped     bool
 }
 
 type toleranceEntry struct {
@@ -49,37 +57,45 @@ type toleranceEntry struct {
 	line        int
 }
 
-type toleranceFile struct {
-	Limit []toleranceEntry `toml:"limit"`
+type entryTable struct {
+	// LevelInstruction is shown, large, with a Level 2 or 3 verdict of a
+	// morning entry.
+	LevelInstruction string `toml:"level_instruction"`
 }
 
-// ShippedTolerances returns the example book embedded in the binary (in
-// force when no --tolerances file is given).
-func ShippedTolerances() *Tolerances {
-	t, err := ParseTolerances(deploy.TolerancesExample, "shipped example (deploy/tolerances.example.toml)")
+type toleranceFile struct {
+	Limit     []toleranceEntry `toml:"limit"`
+	Detection map[string]any   `toml:"detection"`
+	Entry     entryTable       `toml:"entry"`
+}
+
+// Shipped returns the example book embedded in the binary (in force when
+// no --tolerances file is given).
+func Shipped() *Book {
+	t, err := Parse(Example, "shipped example (analysis/tolerance/example.toml)")
 	if err != nil {
-		panic("worker: the shipped tolerance example does not load: " + err.Error()) // a build defect, caught by the tests
+		panic("tolerance: the shipped example does not load: " + err.Error()) // a build defect, caught by the tests
 	}
 	t.shipped = true
 	return t
 }
 
-// LoadTolerances reads the book at path; an empty path gives the shipped
+// Load reads the book at path; an empty path gives the shipped
 // example.
-func LoadTolerances(path string) (*Tolerances, error) {
+func Load(path string) (*Book, error) {
 	if path == "" {
-		return ShippedTolerances(), nil
+		return Shipped(), nil
 	}
 	data, err := os.ReadFile(path)
 	if err != nil {
 		return nil, fmt.Errorf("tolerances: %w", err)
 	}
-	return ParseTolerances(data, path)
+	return Parse(data, path)
 }
 
-// ParseTolerances reads a book from TOML. Errors name the file and line
+// Parse reads a book from TOML. Errors name the file and line
 // and say what to fix. The hash is the hex SHA-256 of data.
-func ParseTolerances(data []byte, source string) (*Tolerances, error) {
+func Parse(data []byte, source string) (*Book, error) {
 	var f toleranceFile
 	md, err := toml.Decode(string(data), &f)
 	if err != nil {
@@ -89,12 +105,15 @@ func ParseTolerances(data []byte, source string) (*Tolerances, error) {
 		}
 		return nil, fmt.Errorf("tolerances %s: %v", source, err)
 	}
-	if und := md.Undecoded(); len(und) > 0 {
-		return nil, fmt.Errorf("tolerances %s: unknown key %q; the keys of a [[limit]] are quantity, kind, jaws, edges, tolerance_mm, action_mm, source", source, und[0].String())
+	for _, k := range md.Undecoded() {
+		if len(k) > 0 && k[0] == "detection" {
+			continue // decoded by the drift engine (DecodeDetection)
+		}
+		return nil, fmt.Errorf("tolerances %s: unknown key %q; the keys of a [[limit]] are quantity, kind, jaws, edges, tolerance_mm, action_mm, source; [entry] has level_instruction; [detection] holds the chart designs", source, k.String())
 	}
 	lines := limitLines(data)
 	if len(f.Limit) == 0 {
-		return nil, fmt.Errorf("tolerances %s: no [[limit]] entries; see deploy/tolerances.example.toml", source)
+		return nil, fmt.Errorf("tolerances %s: no [[limit]] entries; see analysis/tolerance/example.toml", source)
 	}
 	seen := map[string]int{}
 	for i := range f.Limit {
@@ -111,8 +130,12 @@ func ParseTolerances(data []byte, source string) (*Tolerances, error) {
 		}
 		seen[key] = e.line
 	}
+	instr := strings.TrimSpace(f.Entry.LevelInstruction)
+	if instr == "" {
+		instr = DefaultInstruction
+	}
 	sum := sha256.Sum256(data)
-	return &Tolerances{entries: f.Limit, hash: hex.EncodeToString(sum[:]), source: source}, nil
+	return &Book{entries: f.Limit, detection: f.Detection, instruction: instr, hash: hex.EncodeToString(sum[:]), source: source}, nil
 }
 
 // limitLines returns the 1-based line of each [[limit]] header.
@@ -176,14 +199,14 @@ func (e *toleranceEntry) validate() error {
 // (B1P23) is looked up as mlc_leaf. The most specific entry wins: exact
 // kind over "default", then exact jaw setting over "any", then exact edge
 // class over "any".
-func (t *Tolerances) Limits(q halfmark.Quantity, kind halfmark.CheckKind, edge string, asymmetric bool) (halfmark.Limits, bool) {
+func (t *Book) Limits(q halfmark.Quantity, kind halfmark.CheckKind, edge string, asymmetric bool) (halfmark.Limits, bool) {
 	class := "jaws"
 	if e, err := halfmark.ParseEdge(edge); err == nil && e.Jaw == "" {
 		class = "mlc"
 		if q == halfmark.QPosition {
-			q = QMLCLeaf
+			q = halfmark.QMLCLeaf
 		}
-	} else if q == QMLCBankMean || q == QMLCLeaf {
+	} else if q == halfmark.QMLCBankMean || q == halfmark.QMLCLeaf {
 		class = "mlc"
 	}
 	jaws := "symmetric"
@@ -218,12 +241,37 @@ func (t *Tolerances) Limits(q halfmark.Quantity, kind halfmark.CheckKind, edge s
 }
 
 // Hash implements halfmark.ToleranceBook.
-func (t *Tolerances) Hash() string { return t.hash }
+func (t *Book) Hash() string { return t.hash }
 
 // Source implements halfmark.ToleranceBook.
-func (t *Tolerances) Source() string { return t.source }
+func (t *Book) Source() string { return t.source }
 
 // IsShippedExample implements halfmark.ToleranceBook.
-func (t *Tolerances) IsShippedExample() bool { return t.shipped }
+func (t *Book) IsShippedExample() bool { return t.shipped }
 
-var _ halfmark.ToleranceBook = (*Tolerances)(nil)
+// Instruction is the text shown with a Level 2 or 3 morning verdict.
+func (t *Book) Instruction() string { return t.instruction }
+
+// DecodeDetection decodes the book's [detection] table into v (a pointer to
+// the drift engine's design struct, filled with its defaults first): keys
+// the table leaves out keep their defaults; an unknown key is an error that
+// names it.
+func (t *Book) DecodeDetection(v any) error {
+	if len(t.detection) == 0 {
+		return nil
+	}
+	var buf bytes.Buffer
+	if err := toml.NewEncoder(&buf).Encode(t.detection); err != nil {
+		return fmt.Errorf("tolerances %s: [detection]: %v", t.source, err)
+	}
+	md, err := toml.Decode(buf.String(), v)
+	if err != nil {
+		return fmt.Errorf("tolerances %s: [detection]: %v", t.source, err)
+	}
+	if und := md.Undecoded(); len(und) > 0 {
+		return fmt.Errorf("tolerances %s: [detection]: unknown key %q", t.source, und[0].String())
+	}
+	return nil
+}
+
+var _ halfmark.ToleranceBook = (*Book)(nil)

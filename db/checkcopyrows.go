@@ -11,7 +11,7 @@ import (
 )
 
 // checkColumns are the columns checkRows fills, in order.
-var checkColumns = []string{"id", "supersedes", "body_hash", "kind", "device", "operator", "note", "geometry",
+var checkColumns = []string{"id", "supersedes", "body_hash", "kind", "device", "method", "operator", "note", "geometry",
 	"machine_id", "beam_id", "measured_at", "ssd_cm", "depth_cm", "field_x_cm", "field_y_cm", "collimator_deg",
 	"gantry_deg", "edges", "analysis_version", "created_by"}
 
@@ -47,7 +47,7 @@ func (r *checkRows) Next() bool {
 		}
 		r.buf = appendEdges(r.buf[:0], c.Edges)
 		s := &c.Setup
-		r.row = append(r.row[:0], pgtype.UUID{Bytes: id, Valid: true}, sup, r.hashes[i], string(c.Kind), c.Device, c.Operator,
+		r.row = append(r.row[:0], pgtype.UUID{Bytes: id, Valid: true}, sup, r.hashes[i], string(c.Kind), c.Device, string(c.Method), c.Operator,
 			c.Note, s.Geometry(), c.MachineID, c.BeamID, c.MeasuredAt, s.SSDcm, s.DepthCm, s.FieldXcm, s.FieldYcm,
 			s.CollimatorDeg, s.GantryDeg, string(r.buf), c.AnalysisVersion, r.by)
 		return true

@@ -1,4 +1,4 @@
-package worker
+package tolerance
 
 import (
 	"os"
@@ -7,7 +7,6 @@ import (
 	"testing"
 
 	"halfmark"
-	"halfmark/analysis/drift"
 )
 
 // The shipped book carries the AAPM TG-142 values (Klein et al., Med Phys
@@ -17,7 +16,7 @@ import (
 // (seen); MLC leaf position 1 mm (from memory). Penumbra is a local choice
 // (no published tolerance, physics.md).
 func TestShippedTolerances(t *testing.T) {
-	b := ShippedTolerances()
+	b := Shipped()
 	if !b.IsShippedExample() || !strings.Contains(b.Source(), "shipped") || len(b.Hash()) != 64 {
 		t.Fatalf("shipped %v source %q hash %q", b.IsShippedExample(), b.Source(), b.Hash())
 	}
@@ -35,10 +34,10 @@ func TestShippedTolerances(t *testing.T) {
 		{halfmark.QPosition, halfmark.KindMonthly, "X2", true, 1, "TG-142"},
 		{halfmark.QLightOffset, halfmark.KindMonthly, "Y1", false, 2, "coincidence"},
 		{halfmark.QLightOffset, halfmark.KindAnnual, "Y1", true, 1, "coincidence"},
-		{QFieldSize, halfmark.KindMorning, "X1+X2", false, 2, "collimator size"},
-		{QFieldSize, halfmark.KindMonthly, "X1+X2", true, 1, "asymmetric"},
+		{halfmark.QFieldSize, halfmark.KindMorning, "X1+X2", false, 2, "collimator size"},
+		{halfmark.QFieldSize, halfmark.KindMonthly, "X1+X2", true, 1, "asymmetric"},
 		{halfmark.QPosition, halfmark.KindMonthly, "B1P23", false, 1, "leaf position"},
-		{QMLCBankMean, halfmark.KindMonthly, "B2", false, 0.5, "local choice"},
+		{halfmark.QMLCBankMean, halfmark.KindMonthly, "B2", false, 0.5, "local choice"},
 		{halfmark.QPenumbra, halfmark.KindMorning, "X1", false, 1, "local choice"},
 	} {
 		l, ok := b.Limits(c.q, c.kind, c.edge, c.asym)
@@ -59,7 +58,7 @@ func TestLoadTolerancesFile(t *testing.T) {
 	if err := os.WriteFile(p, []byte(good), 0o644); err != nil {
 		t.Fatal(err)
 	}
-	b, err := LoadTolerances(p)
+	b, err := Load(p)
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -74,7 +73,7 @@ func TestLoadTolerancesFile(t *testing.T) {
 	if _, ok := b.Limits(halfmark.QPenumbra, halfmark.KindMorning, "X1", false); ok {
 		t.Error("a limit for penumbra, which the file does not set")
 	}
-	b2, err := ParseTolerances([]byte(good+"\n"), "x")
+	b2, err := Parse([]byte(good+"\n"), "x")
 	if err != nil || b2.Hash() == b.Hash() {
 		t.Errorf("a changed file keeps the hash (%v)", err)
 	}
@@ -94,32 +93,40 @@ func TestTolerancesErrorsNameTheLine(t *testing.T) {
 		{entry + "colour = 1\n", "unknown key"},
 		{"", "no [[limit]]"},
 	} {
-		_, err := ParseTolerances([]byte(c.text), "t.toml")
+		_, err := Parse([]byte(c.text), "t.toml")
 		if err == nil || !strings.Contains(err.Error(), c.want) {
 			t.Errorf("error %v, want one containing %q", err, c.want)
 		}
 	}
 }
 
-// Jaw-pair checks against the shipped book: daily field size 2 mm (TG-142
-// collimator size indicator, seen), monthly asymmetric 1 mm (secondary),
-// centre offset 1 mm / 1.5 mm (local choice in the example).
-func TestCheckPairShipped(t *testing.T) {
-	b := ShippedTolerances()
-	for _, c := range []struct {
-		d1, d2 float64
-		kind   halfmark.CheckKind
-		asym   bool
-		want   halfmark.Level
-	}{
-		{1.0, 1.0, halfmark.KindMorning, false, halfmark.LevelInControl},  // ΔF = 2.0: on the limit is inside
-		{1.3, 1.2, halfmark.KindMorning, false, halfmark.LevelScheduled},  // ΔF = 2.5 > 2
-		{0.6, 0.6, halfmark.KindMonthly, true, halfmark.LevelScheduled},   // ΔF = 1.2 > 1 (asymmetric)
-		{-1.6, 1.6, halfmark.KindMonthly, false, halfmark.LevelImmediate}, // Δc = 1.6 > 1.5
-	} {
-		pc := checkPair(drift.Attribute("X1", c.d1, "X2", c.d2, 0.1), "X1+X2", c.kind, c.asym, b)
-		if pc.Level != c.want || pc.FieldSizeLimits == nil || pc.CentreLimits == nil {
-			t.Errorf("d = (%v, %v) %s asym %v: level %d, want %d (%+v)", c.d1, c.d2, c.kind, c.asym, pc.Level, c.want, pc)
-		}
+// The [detection] table overrides the engine's defaults key by key; unknown
+// keys are refused by name. [entry] sets the Level 2/3 instruction.
+func TestDetectionAndEntryTables(t *testing.T) {
+	entry := "[[limit]]\nquantity = \"position\"\nkind = \"default\"\ntolerance_mm = 2\naction_mm = 3\nsource = \"x\"\n"
+	b, err := Parse([]byte(entry+"[detection]\ncusum_k = 0.75\n[entry]\nlevel_instruction = \"Call the physicist on duty.\"\n"), "t.toml")
+	if err != nil {
+		t.Fatal(err)
+	}
+	var d struct {
+		CUSUMK float64 `toml:"cusum_k"`
+		CUSUMH float64 `toml:"cusum_h"`
+	}
+	d.CUSUMH = 5
+	if err := b.DecodeDetection(&d); err != nil || d.CUSUMK != 0.75 || d.CUSUMH != 5 {
+		t.Errorf("decoded %+v, %v; want k 0.75 and the default h 5", d, err)
+	}
+	if b.Instruction() != "Call the physicist on duty." {
+		t.Errorf("instruction %q", b.Instruction())
+	}
+	b, err = Parse([]byte(entry+"[detection]\ncusum_q = 1\n"), "t.toml")
+	if err != nil {
+		t.Fatal(err)
+	}
+	if err := b.DecodeDetection(&d); err == nil || !strings.Contains(err.Error(), "cusum_q") {
+		t.Errorf("unknown detection key: %v", err)
+	}
+	if Shipped().Instruction() != DefaultInstruction {
+		t.Errorf("shipped instruction %q", Shipped().Instruction())
 	}
 }
