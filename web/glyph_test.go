@@ -3,6 +3,7 @@ package web
 import (
 	"strings"
 	"testing"
+	"time"
 
 	"halfmark"
 )
@@ -37,5 +38,31 @@ func TestPlainNumbers(t *testing.T) {
 		if got := plainNumbers(in); got != want {
 			t.Errorf("plainNumbers(%q) = %q, want %q", in, got, want)
 		}
+	}
+}
+
+// A finding belongs to every month its fault was present in: opened, or
+// begun (onset), before the month's end and not resolved before its start.
+func TestActiveDuring(t *testing.T) {
+	day := func(m, d int) time.Time { return time.Date(2026, time.Month(m), d, 12, 0, 0, 0, time.UTC) }
+	from, to := day(11, 1), day(12, 1)
+	onset, seen, fixed, early := day(10, 28), day(12, 2), day(11, 15), day(10, 20)
+	cases := []struct {
+		f    halfmark.Finding
+		want bool
+	}{
+		{halfmark.Finding{OpenedAt: day(11, 3)}, true},
+		{halfmark.Finding{OpenedAt: seen, Onset: &onset}, true}, // seen after the month, present in it
+		{halfmark.Finding{OpenedAt: seen}, false},
+		{halfmark.Finding{OpenedAt: day(10, 1), ResolvedAt: &fixed}, true},
+		{halfmark.Finding{OpenedAt: day(10, 1), ResolvedAt: &early}, false},
+	}
+	for i, c := range cases {
+		if got := activeDuring(c.f, from, to); got != c.want {
+			t.Errorf("case %d: activeDuring = %v, want %v", i, got, c.want)
+		}
+	}
+	if activeAt(halfmark.Finding{OpenedAt: day(10, 1), ResolvedAt: &fixed}, to) {
+		t.Error("a finding resolved mid-month is active at the month's end")
 	}
 }

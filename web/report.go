@@ -112,8 +112,16 @@ func (r *Reporter) gather(ctx context.Context, machineID int64, month string) (*
 	}
 	if r.d.Findings == nil {
 		d.NoFindings = true
-	} else if d.Findings, err = r.d.Findings.Findings(ctx, halfmark.FindingFilter{MachineID: machineID, State: "all", From: from, To: to, Limit: 10000}); err != nil {
-		return nil, err
+	} else {
+		all, err := r.d.Findings.Findings(ctx, halfmark.FindingFilter{MachineID: machineID, State: "all", Limit: 10000})
+		if err != nil {
+			return nil, err
+		}
+		for _, f := range all {
+			if activeDuring(f, from, to) {
+				d.Findings = append(d.Findings, f)
+			}
+		}
 	}
 	if d.Checks, err = r.d.Checks.Checks(ctx, halfmark.CheckFilter{MachineID: machineID, From: from, To: to, Limit: 100000}); err != nil {
 		return nil, err
@@ -146,11 +154,18 @@ func seriesLess(a, b halfmark.Series) bool {
 	return a.Edge < b.Edge
 }
 
-// activeAt reports whether a finding was active at t: opened before t and
-// not resolved by then.
-func activeAt(f halfmark.Finding, t time.Time) bool {
-	return f.OpenedAt.Before(t) && (f.ResolvedAt == nil || !f.ResolvedAt.Before(t))
+// activeDuring reports whether a finding's fault was present at any time
+// in [from, to): it was opened, or its change began (the engine's onset),
+// before to, and it was not resolved before from. A finding opened after
+// the month whose onset lies in or before it belongs to the month: the
+// fault was there, it was only seen later.
+func activeDuring(f halfmark.Finding, from, to time.Time) bool {
+	began := f.OpenedAt.Before(to) || (f.Onset != nil && f.Onset.Before(to))
+	return began && (f.ResolvedAt == nil || !f.ResolvedAt.Before(from))
 }
+
+// activeAt reports whether a finding's fault was present at t.
+func activeAt(f halfmark.Finding, t time.Time) bool { return activeDuring(f, t, t) }
 
 // checkRows lists, per beam, the checks done by kind and what is missing:
 // the monthly check, and the weekdays (up to today) without a morning
@@ -631,7 +646,7 @@ func (r *Reporter) render(d *reportData) ([]byte, error) {
 		mag := fmt.Sprintf("%s mm (95%%: %s to %s)", signed(f.MagnitudeMM), signed(f.MagnitudeCIMM[0]), signed(f.MagnitudeCIMM[1]))
 		what := fmt.Sprintf("#%d %s %s. %s", f.ID, kindName(f.Kind), f.Name, plainNumbers(f.Message))
 		rows = append(rows, []string{what, f.Level.String(), string(f.State),
-			"opened " + f.OpenedAt.Local().Format("2006-01-02") + "; onset " + onset,
+			openedText(f, d.To) + "; onset " + onset,
 			mag + ". " + reportCrossingText(f.Crossing), handlingText(f)})
 	}
 	if d.NoFindings {
@@ -1078,4 +1093,14 @@ func plural(n int, what string) string {
 		return "1 " + what
 	}
 	return strconv.Itoa(n) + " " + what + "s"
+}
+
+// openedText is when a finding was opened, saying so when that was after
+// the month (the fault began earlier; it was seen later).
+func openedText(f halfmark.Finding, to time.Time) string {
+	t := "opened " + f.OpenedAt.Local().Format("2006-01-02")
+	if !f.OpenedAt.Before(to) {
+		t += " (after the month)"
+	}
+	return t
 }
