@@ -158,3 +158,38 @@ func TestOldAlertLinksLand(t *testing.T) {
 	code, _, _ = th.get("/alerts/77")
 	must(t, code == http.StatusNotFound, "unknown alert: %d", code)
 }
+
+// With the drift engine and the store's own findings (no stand-in): a
+// jaw that steps 2.5 mm outward after 20 steady days (an analytic
+// scenario: the step is 25 times the 0.1 mm wobble) gives a finding whose
+// page opens, names the jaw and links its evidence series.
+func TestFindingPagesWithEngine(t *testing.T) {
+	h := newHarness(t, harnessOpts{engine: true})
+	mid, bids := h.machine("Linac Drift", 6)
+	h.history(mid, bids[0], 30, func(i int) float64 {
+		if i >= 20 {
+			return 2.5
+		}
+		return 0
+	})
+	h.evaluate()
+	fs, err := h.db.Findings(h.ctx, halfmark.FindingFilter{MachineID: mid, State: "active"})
+	must(t, err == nil && len(fs) > 0, "the engine opened no finding (%v)", err)
+	var jaw *halfmark.Finding
+	for i := range fs {
+		if fs[i].Kind == halfmark.ComponentJaw && fs[i].Name == "X2" {
+			jaw = &fs[i]
+		}
+	}
+	must(t, jaw != nil, "no finding for jaw X2 among %+v", fs)
+	th := h.signIn("therapist@example.org")
+	code, body, _ := th.get("/findings")
+	must(t, code == http.StatusOK && strings.Contains(body, fmt.Sprintf(`<a href="/findings/%d">jaw X2</a>`, jaw.ID)), "list: %d", code)
+	code, body, _ = th.get(fmt.Sprintf("/findings/%d", jaw.ID))
+	must(t, code == http.StatusOK && strings.Contains(body, "jaw X2") && strings.Contains(body, jaw.Level.String()), "finding page: %d", code)
+	for _, e := range jaw.Evidence {
+		must(t, strings.Contains(body, fmt.Sprintf(`<a href="/series/%d">`, e.SeriesID)), "evidence series %d not linked", e.SeriesID)
+		code, _, _ := th.get(fmt.Sprintf("/series/%d", e.SeriesID))
+		must(t, code == http.StatusOK, "evidence series page %d: %d", e.SeriesID, code)
+	}
+}

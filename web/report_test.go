@@ -6,6 +6,8 @@ import (
 	"fmt"
 	"net/http"
 	"net/url"
+	"os"
+	"os/exec"
 	"regexp"
 	"strings"
 	"testing"
@@ -52,4 +54,42 @@ func TestReportPage(t *testing.T) {
 	must(t, code == http.StatusOK && hex.EncodeToString(sum[:]) == m[1] && hdr.Get("X-Report-Signed-By") == "physicist@example.org", "signed download: %d", code)
 	code, body, _ = ph.postWithToken(page, page+"/sign", url.Values{"reason": {"again"}})
 	must(t, code == http.StatusConflict && strings.Contains(body, "already signed"), "second signature: %d", code)
+}
+
+// The report reads the engine: with the store's own findings and
+// evaluations, a jaw X2 stepped 2.5 mm outward this month is named on
+// page 1 with its level, and every page says machine, month and
+// "page n of N" (read back with pdftotext, poppler-utils).
+func TestReportFromEngine(t *testing.T) {
+	if _, err := exec.LookPath("pdftotext"); err != nil {
+		if os.Getenv("CI") == "" {
+			t.Skip("pdftotext is not installed (apt-get install poppler-utils); in CI it runs")
+		}
+		t.Fatal("CI is set but pdftotext is missing: install poppler-utils")
+	}
+	h := newHarness(t, harnessOpts{engine: true})
+	mid, bids := h.machine("Linac Drift", 6)
+	h.history(mid, bids[0], 30, func(i int) float64 {
+		if i >= 20 {
+			return 2.5
+		}
+		return 0
+	})
+	h.evaluate()
+	month := time.Now().Add(-24 * time.Hour).Format("2006-01")
+	th := h.signIn("therapist@example.org")
+	code, pdf, _ := th.get(fmt.Sprintf("/machines/%d/reports/%s/draft.pdf", mid, month))
+	must(t, code == http.StatusOK, "draft: %d", code)
+	cmd := exec.Command("pdftotext", "-", "-")
+	cmd.Stdin = strings.NewReader(pdf)
+	out, err := cmd.Output()
+	must(t, err == nil, "pdftotext: %v", err)
+	pages := strings.Split(strings.TrimRight(string(out), "\f"), "\f")
+	for i, p := range pages {
+		must(t, strings.Contains(p, fmt.Sprintf("page %d of %d", i+1, len(pages))) && strings.Contains(p, "Linac Drift") && strings.Contains(p, month),
+			"page %d lacks machine, month or page n of N", i+1)
+	}
+	first := strings.Join(strings.Fields(pages[0]), " ")
+	must(t, strings.Contains(first, "jaw X2") && strings.Contains(first, "Level"), "page 1 does not name the X2 finding:\n%s", first)
+	must(t, strings.Contains(first, "jaw X1") && (strings.Contains(first, "in control") || strings.Contains(first, "within tolerance")), "page 1 lacks the steady jaw's verdict:\n%s", first)
 }
