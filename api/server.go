@@ -27,6 +27,10 @@ type Services struct {
 	Findings    halfmark.FindingService    // findings and their lifecycle (nil: 503)
 	Evaluations halfmark.EvaluationService // the engine's stored judgements (nil: charts answer 503)
 	Raw         halfmark.RawService        // raw data behind checks
+	// Reports keeps signed monthly reports; ReportRenderer renders drafts
+	// (nil: the report routes answer 503).
+	Reports        halfmark.ReportService
+	ReportRenderer halfmark.ReportRenderer
 	Metrics     *Metrics                   // nil: requests are not counted
 	Log         *slog.Logger
 	Now         func() time.Time

@@ -328,8 +328,12 @@ func auditChecks(ctx context.Context, tx pgx.Tx, a halfmark.Actor, cs []halfmark
 		if c.Supersedes != "" {
 			action = "correct"
 		}
-		if err := audit(ctx, tx, a, action, "check", c.ID, map[string]any{"machine_id": c.MachineID, "beam_id": c.BeamID,
-			"kind": c.Kind, "edges": len(c.Edges), "supersedes": c.Supersedes}); err != nil {
+		detail := map[string]any{"machine_id": c.MachineID, "beam_id": c.BeamID,
+			"kind": c.Kind, "edges": len(c.Edges), "supersedes": c.Supersedes}
+		if c.Supersedes != "" {
+			detail["note"] = c.Note // a correction's reason
+		}
+		if err := audit(ctx, tx, a, action, "check", c.ID, detail); err != nil {
 			return err
 		}
 	}

@@ -40,7 +40,17 @@ type entryData struct {
 	CheckID  string
 	Focus    string
 	Jaws     []string
+	// Warnings ask for confirmation before saving: values far from what
+	// the beam's setup implies. Nothing is saved until confirmed.
+	Warnings []string
+	// Correcting is the check this entry corrects (supersedes); a reason
+	// is then required.
+	Correcting *halfmark.Check
 }
+
+// DefaultInstruction is shown beside a Level 2 or 3 morning verdict when
+// the site sets none. It is a local choice, not a published requirement.
+const DefaultInstruction = "Repeat the measurement and inform physics before treating."
 
 type verdictRow struct {
 	Edge        string
@@ -50,8 +60,8 @@ type verdictRow struct {
 	HasLimits   bool
 	Level       halfmark.Level
 	Text        string
-	PenDevMM    *float64
-	Estimated   bool // the baseline was estimated, not set
+	Pending     bool // the engine has not stored an evaluation of this check yet
+	SeriesID    int64
 }
 
 type verdict struct {
@@ -61,7 +71,16 @@ type verdict struct {
 	Created       bool
 	Rows          []verdictRow
 	Worst         halfmark.Level
+	Pending       bool
+	// Instruction is shown large with a Level 2 or 3 verdict; Local says
+	// it is the shipped text, a local choice.
+	Instruction string
+	Local       bool
+	Corrects    string
 }
+
+// Big reports whether the verdict calls for action now (Level 2 or 3).
+func (v *verdict) Big() bool { return v.Worst >= halfmark.LevelScheduled }
 
 func (s *server) beamChoices(ctx context.Context) ([]beamChoice, error) {
 	ms, err := s.d.Machines.Machines(ctx)
@@ -118,7 +137,54 @@ func (s *server) entryPage(c echo.Context) error {
 	}
 	d := entryData{Choices: choices, Selected: sel, Jaws: jaws, CheckID: uuid.NewString(), Focus: "x1",
 		Values: map[string]string{"device": device, "field_x": "10", "field_y": "10"}, Errors: map[string]string{}}
+	if id := strings.TrimSpace(c.QueryParam("correct")); id != "" {
+		if err := s.prefillCorrection(c, &d, id); err != nil {
+			return s.failErr(c, err)
+		}
+	}
 	return s.render(c, http.StatusOK, "entry", "Morning check", d)
+}
+
+// prefillCorrection fills the form with the values of the check being
+// corrected, so that only the wrong ones need typing again.
+func (s *server) prefillCorrection(c echo.Context, d *entryData, id string) error {
+	if !halfmark.IsUUID(id) {
+		return halfmark.Errorf(halfmark.ENotFound, "There is no check %q to correct.", id)
+	}
+	st, err := s.d.Checks.Check(c.Request().Context(), id)
+	if err != nil {
+		return err
+	}
+	if st.SupersededBy != "" {
+		return halfmark.Errorf(halfmark.EConflict, "Check %s was already corrected by check %s; correct that one instead.", id, st.SupersededBy)
+	}
+	if st.Kind != halfmark.KindMorning {
+		return halfmark.Errorf(halfmark.EInvalid, "Check %s is a %s check; only morning checks are corrected here.", id, st.Kind)
+	}
+	chk := st.Check
+	d.Correcting = &chk
+	d.Selected = fmt.Sprintf("%d:%d", st.MachineID, st.BeamID)
+	d.Values["device"], d.Values["note"] = st.Device, ""
+	d.Values["measured_at"] = st.MeasuredAt.Local().Format("2006-01-02T15:04")
+	d.Values["supersedes"] = st.ID
+	if st.Setup.FieldXcm != nil {
+		d.Values["field_x"] = strconv.FormatFloat(*st.Setup.FieldXcm, 'f', -1, 64)
+	}
+	if st.Setup.FieldYcm != nil {
+		d.Values["field_y"] = strconv.FormatFloat(*st.Setup.FieldYcm, 'f', -1, 64)
+	}
+	for _, e := range st.Edges {
+		l := strings.ToLower(e.Edge)
+		d.Values[l] = strconv.FormatFloat(e.PositionMM, 'f', -1, 64)
+		if e.PenumbraMM != nil {
+			d.Values["pen_"+l] = strconv.FormatFloat(*e.PenumbraMM, 'f', -1, 64)
+		}
+		if e.LightPositionMM != nil {
+			d.Values["light_"+l] = strconv.FormatFloat(*e.LightPositionMM, 'f', -1, 64)
+		}
+	}
+	d.Focus = "reason"
+	return nil
 }
 
 var edgeIndex = regexp.MustCompile(`^edges\[(\d+)\]\.(\w+)$`)
@@ -133,7 +199,7 @@ func (s *server) entrySave(c echo.Context) error {
 		return s.failErr(c, err)
 	}
 	d := entryData{Choices: choices, Jaws: jaws, Values: map[string]string{}, Errors: map[string]string{}}
-	for _, k := range []string{"beam", "device", "field_x", "field_y", "measured_at", "note", "check_id"} {
+	for _, k := range []string{"beam", "device", "field_x", "field_y", "measured_at", "note", "check_id", "supersedes", "reason"} {
 		d.Values[k] = strings.TrimSpace(c.FormValue(k))
 	}
 	for _, j := range jaws {
@@ -203,7 +269,27 @@ func (s *server) entrySave(c echo.Context) error {
 	if u := user(c); u != nil {
 		chk.Operator = u.Email
 	}
-	if len(d.Errors) == 0 {
+	if id := d.Values["supersedes"]; id != "" {
+		if err := s.prefillCorrection(c, &entryData{Values: map[string]string{}}, id); err != nil {
+			d.Problem = messageOf(err)
+		} else if old, err := s.d.Checks.Check(ctx, id); err == nil {
+			o := old.Check
+			d.Correcting = &o
+			chk.Supersedes = id
+			if d.Values["reason"] == "" {
+				d.Errors["reason"] = "Say why the check is corrected (e.g. typed in cm): the reason is kept with the correction."
+			} else {
+				chk.Note = strings.TrimSpace("Correction of " + id + ": " + d.Values["reason"] + ". " + d.Values["note"])
+			}
+		}
+	}
+	if len(d.Errors) == 0 && d.Problem == "" && c.FormValue("confirm") != "1" {
+		if d.Warnings = plausibility(chk, fx, fy); len(d.Warnings) > 0 {
+			d.Focus = "confirm"
+			return s.render(c, http.StatusOK, "entry", "Morning check", d)
+		}
+	}
+	if len(d.Errors) == 0 && d.Problem == "" {
 		stored, created, err := s.d.Checks.RecordCheck(ctx, user(c).Actor(), &chk)
 		if err == nil {
 			s.status.invalidate()
@@ -212,6 +298,7 @@ func (s *server) entrySave(c echo.Context) error {
 			d.CheckID = uuid.NewString()
 			keep := map[string]string{"device": d.Values["device"], "field_x": d.Values["field_x"], "field_y": d.Values["field_y"]}
 			d.Values = keep
+			d.Correcting = nil
 			d.Focus = "x1"
 			return s.render(c, http.StatusOK, "entry", "Morning check", d)
 		}
@@ -254,7 +341,7 @@ func (s *server) entrySave(c echo.Context) error {
 		}
 	}
 	for _, k := range []string{"beam", "x1", "x2", "y1", "y2", "pen_x1", "pen_x2", "pen_y1", "pen_y2",
-		"light_x1", "light_x2", "light_y1", "light_y2", "field_x", "field_y", "device", "measured_at"} {
+		"light_x1", "light_x2", "light_y1", "light_y2", "field_x", "field_y", "device", "measured_at", "reason"} {
 		if d.Errors[k] != "" {
 			d.Focus = k
 			break
@@ -263,64 +350,116 @@ func (s *server) entrySave(c echo.Context) error {
 	return s.render(c, http.StatusUnprocessableEntity, "entry", "Morning check", d)
 }
 
-// verdictFor gives each edge its level: beyond the action limit (3),
-// beyond tolerance (2), else within tolerance, using the local tolerance
-// book for a morning check.
+// nominalSpanMM is how far a typed jaw position may lie from the nominal
+// half-field before the entry asks for confirmation (mm). A local choice:
+// ten times the TG-142 daily 1 mm jaw tolerance, far beyond any drift.
+const nominalSpanMM = 10.0
+
+// plausibility names each jaw position far from what the beam's setup
+// implies: more than nominalSpanMM from the nominal half-field (field size
+// in cm × 10 / 2 mm), and says when the value looks typed in cm (ten times
+// it lies near the nominal half-field).
+func plausibility(chk halfmark.Check, fx, fy *float64) []string {
+	var out []string
+	cm := 0
+	for _, e := range chk.Edges {
+		f := fx
+		if strings.HasPrefix(e.Edge, "Y") {
+			f = fy
+		}
+		if f == nil {
+			continue
+		}
+		nominal := *f * 10 / 2
+		v := e.PositionMM
+		if math.Abs(v-nominal) <= nominalSpanMM {
+			continue
+		}
+		w := fmt.Sprintf("%s = %s mm is %s mm from the nominal half-field of %s mm (a %s cm field).", e.Edge, trimFloat(v),
+			trimFloat(math.Abs(v-nominal)), trimFloat(nominal), trimFloat(*f))
+		if math.Abs(v*10-nominal) <= nominalSpanMM {
+			w += fmt.Sprintf(" It looks typed in cm: %s cm is %s mm.", trimFloat(v), trimFloat(v*10))
+			cm++
+		}
+		out = append(out, w)
+	}
+	if cm > 1 {
+		out = append(out, fmt.Sprintf("%d values look typed in cm; positions are entered in mm.", cm))
+	}
+	return out
+}
+
+// verdictFor shows, for each edge, the drift engine's stored evaluation of
+// its series when that evaluation includes this check; otherwise the edge
+// is "evaluation pending". The dashboard judges nothing itself.
 func (s *server) verdictFor(ctx context.Context, st halfmark.StoredCheck, created bool, label string) *verdict {
-	v := &verdict{Beam: label, At: st.MeasuredAt, CheckID: st.ID, Created: created}
+	v := &verdict{Beam: label, At: st.MeasuredAt, CheckID: st.ID, Created: created, Corrects: st.Supersedes,
+		Instruction: s.d.Instruction, Local: s.d.Instruction == ""}
+	if v.Local {
+		v.Instruction = DefaultInstruction
+	}
 	for _, e := range st.Edges {
-		r := verdictRow{Edge: e.Edge, ValueMM: e.IsoPositionMM, DeviationMM: e.DeviationMM, PenDevMM: e.PenumbraDeviationMM}
-		if e.DeviationMM == nil && e.SeriesID != 0 {
-			// No baseline was set: compare with the one estimated from
-			// the series' first points, as the charts do.
-			if dev, ok := s.estimatedDeviation(ctx, e.SeriesID, st.ID); ok {
-				r.DeviationMM, r.Estimated = &dev, true
+		r := verdictRow{Edge: e.Edge, ValueMM: e.IsoPositionMM, SeriesID: e.SeriesID, Pending: true, Text: "evaluation pending"}
+		if s.d.Evaluations != nil && e.SeriesID != 0 {
+			ev, err := s.d.Evaluations.SeriesEvaluation(ctx, e.SeriesID)
+			if err == nil && evaluatedCheck(ev, st.ID) {
+				r.Pending, r.Level, r.DeviationMM = false, ev.Level, ev.DeviationMM
+				r.Text = engineVerdictText(ev.Verdict, ev.Level)
+				if ev.Rule != "" && ev.Verdict == halfmark.VerdictSignal {
+					r.Text = plainNumbers(ev.Rule) // the badge beside it names the level
+				}
+				if ev.Limits != nil {
+					r.Limits, r.HasLimits = *ev.Limits, true
+				}
+			} else if err != nil && halfmark.ErrorCodeOf(err) != halfmark.ENotFound {
+				s.d.Log.Warn("morning verdict", "series", e.SeriesID, "err", err)
 			}
 		}
-		r.Limits, r.HasLimits = s.d.Tolerances.Limits(halfmark.QPosition, halfmark.KindMorning, e.Edge, false)
-		switch {
-		case r.DeviationMM == nil:
-			r.Text = "no baseline yet: this value helps establish it"
-		case !r.HasLimits:
-			r.Text = "no tolerance set for this edge in the tolerance file"
-		case math.Abs(*r.DeviationMM) > r.Limits.ActionMM:
-			r.Level, r.Text = halfmark.LevelImmediate, "beyond the action limit"
-		case math.Abs(*r.DeviationMM) > r.Limits.ToleranceMM:
-			r.Level, r.Text = halfmark.LevelScheduled, "beyond tolerance"
-		default:
-			r.Text = "within tolerance"
+		if r.Pending {
+			v.Pending = true
 		}
-		if r.Level > v.Worst {
-			v.Worst = r.Level
-		}
+		v.Worst = max(v.Worst, r.Level)
 		v.Rows = append(v.Rows, r)
 	}
 	return v
 }
 
-// estimatedDeviation is a check's value minus the series' estimated
-// baseline (the mean of the period's first points, spc.EstimateBaseline).
-func (s *server) estimatedDeviation(ctx context.Context, seriesID int64, checkID string) (float64, bool) {
-	ser, err := s.d.Series.Series(ctx, seriesID)
-	if err != nil {
-		return 0, false
-	}
-	pts, err := s.d.Series.Points(ctx, seriesID)
-	if err != nil {
-		return 0, false
-	}
-	ev, err := s.seriesEvaluation(ctx, seriesID)
-	if err != nil {
-		return 0, false
-	}
-	v := viewSeries(ser, pts, ev)
-	if !v.HasCentre {
-		return 0, false
-	}
-	for i := v.Start; i < len(pts); i++ {
-		if pts[i].CheckID == checkID {
-			return pts[i].Value - v.Centre, true
+// evaluatedCheck reports whether a stored evaluation has judged the check:
+// its chart's newest point is that check.
+func evaluatedCheck(ev halfmark.SeriesEvaluation, checkID string) bool {
+	for i := len(ev.Chart.Points) - 1; i >= 0; i-- {
+		if ev.Chart.Points[i].CheckID == checkID {
+			return true
 		}
 	}
-	return 0, false
+	return false
+}
+
+// correctedPoints are a series' values that later checks superseded, to be
+// drawn beside their corrections (engineView.Corrected).
+func (s *server) correctedPoints(ctx context.Context, ser halfmark.Series) ([]correctedPoint, error) {
+	cs, err := s.d.Checks.Checks(ctx, halfmark.CheckFilter{MachineID: ser.MachineID, BeamID: ser.BeamID, Limit: 100000})
+	if err != nil {
+		return nil, err
+	}
+	var out []correctedPoint
+	for _, c := range cs {
+		if c.SupersededBy == "" || c.Setup.Geometry() != ser.Geometry {
+			continue
+		}
+		for _, e := range c.Edges {
+			if e.Edge != ser.Edge {
+				continue
+			}
+			switch {
+			case ser.Quantity == halfmark.QPosition:
+				out = append(out, correctedPoint{c.MeasuredAt, e.IsoPositionMM})
+			case ser.Quantity == halfmark.QPenumbra && e.PenumbraMM != nil:
+				out = append(out, correctedPoint{c.MeasuredAt, *e.PenumbraMM})
+			case ser.Quantity == halfmark.QLightOffset && e.IsoLightPositionMM != nil:
+				out = append(out, correctedPoint{c.MeasuredAt, *e.IsoLightPositionMM - e.IsoPositionMM})
+			}
+		}
+	}
+	return out, nil
 }

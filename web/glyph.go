@@ -63,19 +63,52 @@ var glyphSymbols = func() template.HTML {
 
 func levelCSS(l halfmark.Level, overdue bool) string { return levelKey(l, overdue) }
 
+// levelText names a level; an overdue check is named beside any level.
 func levelText(l halfmark.Level, overdue bool) string {
-	if l == halfmark.LevelInControl && overdue {
+	t := "In control"
+	if l != halfmark.LevelInControl {
+		t = l.String()
+	}
+	switch {
+	case overdue && l == halfmark.LevelInControl:
 		return "Check overdue"
+	case overdue:
+		return t + " · check overdue"
 	}
-	if l == halfmark.LevelInControl {
-		return "In control"
-	}
-	return l.String()
+	return t
 }
 
-// glyph is the level's shape followed by its name, as one badge.
+// glyph is the level's shape followed by its name, as one badge. An
+// overdue check gets its own badge beside any level: a machine at Level 1
+// whose morning check is missing shows both, as the README says.
 func glyph(l halfmark.Level, overdue bool) template.HTML {
 	k := levelKey(l, overdue)
-	return template.HTML(`<span class="level `+k+`">`) + glyphs[k] +
-		template.HTML(`<span class="level-text">`+template.HTMLEscapeString(levelText(l, overdue))+`</span></span>`)
+	text := levelText(l, false)
+	if k == "overdue" {
+		text = levelText(l, true)
+	}
+	out := template.HTML(`<span class="level `+k+`">`) + glyphs[k] +
+		template.HTML(`<span class="level-text">`+template.HTMLEscapeString(text)+`</span></span>`)
+	if overdue && k != "overdue" {
+		out += template.HTML(` <span class="level overdue">`) + glyphs["overdue"] +
+			template.HTML(`<span class="level-text">Check overdue</span></span>`)
+	}
+	return out
+}
+
+// engineVerdictText is the engine's verdict word for people.
+func engineVerdictText(v string, l halfmark.Level) string {
+	switch v {
+	case halfmark.VerdictInControl:
+		return "in control"
+	case halfmark.VerdictWithinTolerance:
+		return "within tolerance (control-chart tests not run)"
+	case halfmark.VerdictBaselinePending:
+		return "baseline pending"
+	case halfmark.VerdictSignal:
+		return strings.ToLower(l.String()[:1]) + l.String()[1:]
+	case "", halfmark.VerdictNotEvaluated:
+		return "not evaluated yet"
+	}
+	return v
 }

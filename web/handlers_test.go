@@ -303,7 +303,9 @@ func TestMorningEntry(t *testing.T) {
 	code, body, hdr := th.postWithToken("/entry", "/entry", entryForm(mid, bids[0], "53.5", "52.5", "50.4", "49.9"))
 	must(t, code == http.StatusOK, "entry: %d", code)
 	must(t, len(h.checks("")) == before+1, "the check was not stored")
-	for _, s := range []string{"+3.50", "+2.50", "+0.40", "−0.10", "beyond the action limit", "beyond tolerance", "within tolerance", "Level 3 — immediate action", "Level 2 — scheduled action"} {
+	// Without a stored evaluation the page says so and judges nothing
+	// itself (entry_test.go shows the engine's verdict).
+	for _, s := range []string{"53.50", "52.50", "50.40", "49.90", "evaluation pending"} {
 		must(t, strings.Contains(body, s), "verdict lacks %q", s)
 	}
 	must(t, findCookie(hdr, "hm_console") != nil, "the console choice was not remembered")

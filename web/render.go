@@ -23,7 +23,7 @@ var assets embed.FS
 // templates maps a page name to its template (the layout plus the page).
 type templates map[string]*template.Template
 
-var pageNames = []string{"login", "error", "front", "machine", "series", "entry", "monthly", "beam", "import"}
+var pageNames = []string{"login", "error", "front", "machine", "series", "entry", "monthly", "beam", "import", "report", "findings", "finding"}
 
 func parseTemplates() (templates, error) {
 	t := templates{}

@@ -68,6 +68,10 @@ type Deps struct {
 	Findings    halfmark.FindingService
 	Evaluations halfmark.EvaluationService
 	Verdicts    halfmark.VerdictService // stored evaluations; optional: without it no verdict is shown
+	Reports     halfmark.ReportService
+	// Instruction is shown beside a Level 2 or 3 morning verdict (empty:
+	// DefaultInstruction).
+	Instruction string
 	Log         *slog.Logger
 	Now         func() time.Time
 

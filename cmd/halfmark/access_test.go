@@ -118,6 +118,12 @@ func TestAccessControlMatrix(t *testing.T) {
 		"POST /series/:id/period": "physicist", "POST /alerts/:id/acknowledge": "physicist", "POST /alerts/:id/resolve": "physicist",
 		"GET /entry": "therapist", "POST /entry": "therapist", "GET /monthly": "therapist", "POST /monthly/analyze": "therapist",
 		"POST /monthly/save": "therapist", "GET /raw/:id": "therapist",
+		"GET /api/v1/machines/:id/reports/:month": "therapist", "GET /api/v1/machines/:id/reports/:month/signed": "therapist",
+		"POST /api/v1/machines/:id/reports/:month/sign": "physicist", "GET /machines/:id/reports/:month": "therapist",
+		"GET /machines/:id/reports/:month/draft.pdf": "therapist", "GET /machines/:id/reports/:month/signed.pdf": "therapist",
+		"POST /machines/:id/reports/:month/sign": "physicist", "GET /findings": "therapist", "GET /findings/:id": "therapist",
+		"POST /findings/:id/acknowledge": "physicist", "POST /findings/:id/resolve": "physicist",
+		"GET /alerts": "therapist", "GET /alerts/:id": "therapist",
 		"PATCH /api/v1/machines/:id": "admin", "GET /api/v1/beams/:id/penumbra-model": "therapist",
 		"POST /api/v1/beams/:id/penumbra-model/predict": "therapist", "GET /machines/:id/beams/:beam": "therapist",
 		"POST /machines/:id/service": "physicist", "POST /machines/:id/findings/acknowledge": "physicist",
@@ -125,6 +131,7 @@ func TestAccessControlMatrix(t *testing.T) {
 	}
 	ids := strings.NewReplacer(":id", "", "*", "halfmark.css")
 	pathFor := func(route string) string {
+		route = strings.Replace(route, ":month", "2026-11", 1)
 		switch {
 		case strings.HasPrefix(route, "/api/v1/machines/:id"), strings.HasPrefix(route, "/machines/:id"):
 			return strings.Replace(route, ":id", fmt.Sprint(m.ID), 1)

@@ -152,12 +152,15 @@ type httpConfig struct {
 // one echo server (routes in api/routes.go and web/routes.go). /metrics is
 // served on its own address (api.MetricsHandler).
 func newHandler(d *db.DB, wk *worker.Worker, log *slog.Logger, metrics *api.Metrics, cfg httpConfig) (http.Handler, error) {
+	deps := web.Deps{Machines: d, Checks: d, Series: d, Users: d, Sessions: d, SignOffs: d,
+		Raw: d, Status: d, Alerts: d, Events: d, Audit: d, Tolerances: liveBook{wk}, Log: log, Penumbra: d, Import: d, Export: d,
+		Findings: d, Evaluations: d, Verdicts: d, Reports: d, TrustedProxies: cfg.trustedProxies,
+		Instruction: instructionOf(wk.Tolerances())}
 	h := api.New(api.Services{Machines: d, Checks: d, Series: d, Auth: d, Audit: d, Pinger: d, Log: log,
 		Alerts: d, Status: d, Events: d, Findings: d, Evaluations: d, Raw: d, Metrics: metrics, Penumbra: d,
+		Reports: d, ReportRenderer: web.NewReporter(deps),
 		RoleWarning: cfg.roleWarning, TrustedProxies: cfg.trustedProxies})
-	err := web.Register(h, web.Deps{Machines: d, Checks: d, Series: d, Users: d, Sessions: d, SignOffs: d,
-		Raw: d, Status: d, Alerts: d, Events: d, Audit: d, Tolerances: liveBook{wk}, Log: log, Penumbra: d, Import: d, Export: d,
-		Findings: d, Evaluations: d, Verdicts: d, TrustedProxies: cfg.trustedProxies})
+	err := web.Register(h, deps)
 	return h, err
 }
 
@@ -171,3 +174,12 @@ func (b liveBook) Limits(q halfmark.Quantity, kind halfmark.CheckKind, edge stri
 func (b liveBook) Hash() string           { return b.w.Tolerances().Hash() }
 func (b liveBook) Source() string         { return b.w.Tolerances().Source() }
 func (b liveBook) IsShippedExample() bool { return b.w.Tolerances().IsShippedExample() }
+
+// instructionOf is the tolerance book's text for a Level 2 or 3 morning
+// verdict ("" : the dashboard's default, marked as a local choice).
+func instructionOf(b halfmark.ToleranceBook) string {
+	if i, ok := b.(interface{ Instruction() string }); ok {
+		return i.Instruction()
+	}
+	return ""
+}
