@@ -31,9 +31,9 @@ type Services struct {
 	// (nil: the report routes answer 503).
 	Reports        halfmark.ReportService
 	ReportRenderer halfmark.ReportRenderer
-	Metrics     *Metrics                   // nil: requests are not counted
-	Log         *slog.Logger
-	Now         func() time.Time
+	Metrics        *Metrics // nil: requests are not counted
+	Log            *slog.Logger
+	Now            func() time.Time
 
 	Penumbra halfmark.PenumbraService // penumbra model data (nil: its routes answer 503)
 

@@ -26,6 +26,11 @@ func (d *DB) SignMonthlyReport(ctx context.Context, a halfmark.Actor, r halfmark
 	if _, _, err := halfmark.ParseReportMonth(r.Month, time.UTC); err != nil {
 		return halfmark.SignedReport{}, err
 	}
+	// The one rule for sign-offs: a month from 1990 to the current one, the
+	// reason free text without control characters.
+	if err := halfmark.ValidateSignOff(r.Month, reason, d.Now()); err != nil {
+		return halfmark.SignedReport{}, err
+	}
 	reason = strings.TrimSpace(reason)
 	if len(r.PDF) == 0 {
 		return halfmark.SignedReport{}, halfmark.Invalid("the report is empty; render it again", halfmark.FieldError{Field: "pdf", Message: "has no bytes"})

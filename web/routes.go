@@ -39,9 +39,9 @@ func (s *server) routes(e *echo.Echo) error {
 	g.GET("/machines/:id", s.machine, ther)
 	g.GET("/machines/:id/report", s.report, ther)
 	g.GET("/machines/:id/beams/:beam", s.beam, ther)
-	g.POST("/machines/:id/report/sign", s.signReport, phys)
 	g.POST("/machines/:id/service", s.componentService, phys)
 	g.POST("/machines/:id/findings/acknowledge", s.acknowledgeAll, phys)
+	g.POST("/machines/:id/report/sign", s.signReport, phys) // the old address; the month comes in the form
 	g.GET("/machines/:id/reports/:month", s.reportPage, ther)
 	g.GET("/machines/:id/reports/:month/draft.pdf", s.reportDraft, ther)
 	g.GET("/machines/:id/reports/:month/signed.pdf", s.reportSigned, ther)
