@@ -62,7 +62,7 @@ func newBenchEnv(t testing.TB) *env {
 		e.tokens[r] = s
 	}
 	var m struct{ ID int64 }
-	e.mustDo("POST", "/api/v1/machines", halfmark.RoleAdmin, `{"name":"Linac Aster","sad_cm":100}`, 201, &m)
+	e.mustDo("POST", "/api/v1/machines", halfmark.RoleAdmin, `{"name":"Linac Aster","sad_cm":100,"mlc_leaf_pairs":60}`, 201, &m)
 	e.mach = m.ID
 	var b struct{ ID int64 }
 	e.mustDo("POST", fmt.Sprintf("/api/v1/machines/%d/beams", m.ID), halfmark.RoleAdmin, `{"energy_mv":6,"fff":false}`, 201, &b)
