@@ -16,6 +16,11 @@ type Token struct {
 	RevokedAt *time.Time `json:"revoked_at,omitempty"`
 }
 
+// ActorKey is the request-context key under which the caller's Actor is
+// kept: the API's token check and the dashboard's session both set it, so
+// that a signed-in browser can read the API with its session.
+const ActorKey = "halfmark.actor"
+
 // AuthService issues, checks and revokes API tokens.
 type AuthService interface {
 	// CreateToken stores a new token and returns it with its secret (shown

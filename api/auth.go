@@ -8,7 +8,7 @@ import (
 	"halfmark"
 )
 
-const actorKey = "halfmark.actor"
+const actorKey = halfmark.ActorKey
 
 // authenticate reads "Authorization: Bearer <token>" and stores the actor.
 // Another middleware (the dashboard's session) may have set it already.
@@ -50,7 +50,3 @@ func actor(c echo.Context) halfmark.Actor {
 	a, _ := c.Get(actorKey).(halfmark.Actor)
 	return a
 }
-
-// SetActor lets another authentication layer (the dashboard session)
-// identify the caller before the API's own check.
-func SetActor(c echo.Context, a halfmark.Actor) { c.Set(actorKey, a) }

@@ -1,7 +1,6 @@
 package api
 
 import (
-	"context"
 	"math"
 	"net/http"
 	"strings"
@@ -37,47 +36,6 @@ type penumbraModelJSON struct {
 	Model           string               `json:"model"`
 }
 
-// BeamPenumbraModel loads a beam's penumbra points of one method (the
-// method with most points when method is "") up to until (zero: now) and
-// fits the model. A model that cannot be fitted is EConflict with the
-// reason; an unknown method EInvalid naming "method".
-func BeamPenumbraModel(ctx context.Context, s halfmark.PenumbraService, beamID int64, method halfmark.Method, until time.Time) (penumbra.Model, halfmark.PenumbraSet, error) {
-	if method == "" {
-		counts, err := s.PenumbraMethods(ctx, beamID)
-		if err != nil {
-			return penumbra.Model{}, halfmark.PenumbraSet{}, err
-		}
-		best := 0
-		for _, m := range halfmark.Methods {
-			if counts[m] > best {
-				method, best = m, counts[m]
-			}
-		}
-		if best == 0 {
-			return penumbra.Model{}, halfmark.PenumbraSet{}, halfmark.Errorf(halfmark.EConflict,
-				"beam %d has no penumbra measured with an SSD and a depth; record scans at two setups to fit its penumbra model", beamID)
-		}
-	} else if !method.Valid() {
-		return penumbra.Model{}, halfmark.PenumbraSet{}, halfmark.Invalid("the method is not valid",
-			halfmark.FieldError{Field: "method", Message: "must be one of typed, epid, scan, film, other (got \"" + string(method) + "\")"})
-	}
-	set, err := s.PenumbraPoints(ctx, beamID, method, time.Time{}, until)
-	if err != nil {
-		return penumbra.Model{}, set, err
-	}
-	pts, g, err := penumbra.FromSet(set)
-	if err != nil {
-		return penumbra.Model{}, set, halfmark.Errorf(halfmark.EConflict, "%s", err.Error())
-	}
-	m, err := penumbra.Fit(pts, g)
-	if err != nil {
-		return m, set, halfmark.Errorf(halfmark.EConflict, "the penumbra model of beam %d (%s) cannot be fitted: %s", beamID, method, err.Error())
-	}
-	m.Method = string(method)
-	m.PeriodStart = set.PeriodStart
-	return m, set, nil
-}
-
 // penumbraModelFor reads the method and until query parameters and fits.
 func (h *handlers) penumbraModelFor(c echo.Context) (penumbra.Model, halfmark.PenumbraSet, error) {
 	if h.s.Penumbra == nil {
@@ -94,7 +52,7 @@ func (h *handlers) penumbraModelFor(c echo.Context) (penumbra.Model, halfmark.Pe
 				halfmark.FieldError{Field: "until", Message: "must be an RFC 3339 time such as 2026-03-02T00:00:00Z (got \"" + u + "\")"})
 		}
 	}
-	return BeamPenumbraModel(c.Request().Context(), h.s.Penumbra, id, halfmark.Method(strings.TrimSpace(c.QueryParam("method"))), until)
+	return penumbra.LoadModel(c.Request().Context(), h.s.Penumbra, id, halfmark.Method(strings.TrimSpace(c.QueryParam("method"))), until)
 }
 
 // getPenumbraModel serves GET /api/v1/beams/{id}/penumbra-model.

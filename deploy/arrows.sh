@@ -18,7 +18,8 @@ KNOWN=(
   "halfmark/api -> github.com/jackc/pgx/v5"
   # db/checks.go projects positions to the isocentre plane (domain work).
   "halfmark/db -> halfmark/analysis"
-  # web/session.go calls api.SetActor; web/harness_test.go mounts the API.
+  # Tests only: web/harness_test.go mounts the real API beside the dashboard
+  # (the served handler, end to end); web's own code imports no api.
   "halfmark/web -> halfmark/api"
 )
 

@@ -10,7 +10,6 @@ import (
 
 	"halfmark"
 	"halfmark/analysis/penumbra"
-	"halfmark/api"
 )
 
 // beamData is the beam page: the fitted penumbra model, its residuals by
@@ -66,7 +65,7 @@ func (s *server) beam(c echo.Context) error {
 		d.ModelErr = "The penumbra model is not available on this server."
 		return s.render(c, http.StatusOK, "beam", title, d)
 	}
-	model, set, err := api.BeamPenumbraModel(ctx, s.d.Penumbra, bid, halfmark.Method(c.QueryParam("method")), time.Time{})
+	model, set, err := penumbra.LoadModel(ctx, s.d.Penumbra, bid, halfmark.Method(c.QueryParam("method")), time.Time{})
 	switch code := halfmark.ErrorCodeOf(err); {
 	case err == nil:
 	case code == halfmark.EConflict || code == halfmark.EInvalid:
@@ -129,7 +128,7 @@ func (s *server) causeSinceService(c echo.Context, d *beamData, set halfmark.Pen
 	if d.Event == nil {
 		return nil
 	}
-	before, _, err := api.BeamPenumbraModel(ctx, s.d.Penumbra, d.Beam.ID, halfmark.Method(d.Model.Method), d.Event.At)
+	before, _, err := penumbra.LoadModel(ctx, s.d.Penumbra, d.Beam.ID, halfmark.Method(d.Model.Method), d.Event.At)
 	if err != nil {
 		if code := halfmark.ErrorCodeOf(err); code == halfmark.EConflict || code == halfmark.EInvalid {
 			d.CauseText = "The points before the service cannot be fitted: " + messageOf(err)

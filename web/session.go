@@ -10,7 +10,6 @@ import (
 	"github.com/labstack/echo/v4"
 
 	"halfmark"
-	"halfmark/api"
 )
 
 const (
@@ -149,7 +148,7 @@ func (s *server) apiActor(next echo.HandlerFunc) echo.HandlerFunc {
 		}
 		if ck, err := c.Cookie(sessionCookie); err == nil && ck.Value != "" {
 			if u, err := s.sessionUser(c, ck.Value); err == nil {
-				api.SetActor(c, u.Actor())
+				c.Set(halfmark.ActorKey, u.Actor()) // read by the API's auth check
 			}
 		}
 		return next(c)

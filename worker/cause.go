@@ -56,15 +56,7 @@ func (w *Worker) penumbraCauses(ctx context.Context, ev *halfmark.MachineEvaluat
 
 func (w *Worker) classify(ctx context.Context, beamID int64, method halfmark.Method, onset time.Time) (halfmark.PenumbraCause, string) {
 	und := halfmark.PenumbraCause{Kind: penumbra.CauseUndetermined}
-	before, err := w.cfg.Penumbra.PenumbraPoints(ctx, beamID, method, time.Time{}, onset)
-	if err != nil {
-		return und, "undetermined (" + err.Error() + ")"
-	}
-	pts, geo, err := penumbra.FromSet(before)
-	if err != nil {
-		return und, "undetermined (" + err.Error() + ")"
-	}
-	model, err := penumbra.Fit(pts, geo)
+	model, _, err := penumbra.LoadModel(ctx, w.cfg.Penumbra, beamID, method, onset)
 	if err != nil {
 		return und, "undetermined (the baseline penumbra model cannot be fitted: " + err.Error() + ")"
 	}
