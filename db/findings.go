@@ -105,10 +105,10 @@ func (d *DB) Finding(ctx context.Context, id int64) (halfmark.Finding, error) {
 // evidence series restarts after its newest point (Halfmark's convention
 // after an acknowledged signal).
 func (d *DB) AcknowledgeFinding(ctx context.Context, a halfmark.Actor, id int64, comment string) (halfmark.Finding, error) {
-	comment = strings.TrimSpace(comment)
-	if len(comment) > 4000 {
-		return halfmark.Finding{}, halfmark.Invalid("the acknowledgement is not valid", halfmark.FieldError{Field: "comment", Message: "is over 4000 characters; shorten it"})
+	if err := halfmark.ValidateComment("comment", comment, false); err != nil {
+		return halfmark.Finding{}, err
 	}
+	comment = strings.TrimSpace(comment)
 	err := d.tx(ctx, func(tx pgx.Tx) error {
 		var state string
 		err := tx.QueryRow(ctx, `SELECT state FROM findings WHERE id = $1 FOR UPDATE`, id).Scan(&state)
@@ -146,9 +146,12 @@ func (d *DB) AcknowledgeFinding(ctx context.Context, a halfmark.Actor, id int64,
 // are resolved with it.
 func (d *DB) ResolveFinding(ctx context.Context, a halfmark.Actor, id int64, comment string) (halfmark.Finding, error) {
 	comment = strings.TrimSpace(comment)
-	if comment == "" || len(comment) > 4000 {
+	if comment == "" {
 		return halfmark.Finding{}, halfmark.Invalid("the resolution is not valid", halfmark.FieldError{Field: "comment",
-			Message: "is required (up to 4000 characters): say what was found or done"})
+			Message: "is required: say what was found or done"})
+	}
+	if err := halfmark.ValidateComment("comment", comment, true); err != nil {
+		return halfmark.Finding{}, err
 	}
 	err := d.tx(ctx, func(tx pgx.Tx) error {
 		var state string

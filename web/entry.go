@@ -72,6 +72,9 @@ type verdict struct {
 	Rows          []verdictRow
 	Worst         halfmark.Level
 	Pending       bool
+	// Watched: some series of the check has been evaluated before, so a
+	// worker is judging this machine and its verdict is worth a short wait.
+	Watched bool
 	// Instruction is shown large with a Level 2 or 3 verdict; Local says
 	// it is the shipped text, a local choice.
 	Instruction string
@@ -295,6 +298,16 @@ func (s *server) entrySave(c echo.Context) error {
 			s.status.invalidate()
 			rememberConsole(c, d.Selected, d.Values["device"])
 			d.Verdict = s.verdictFor(ctx, stored, created, choice.Label)
+			// The worker evaluates a stored check's machine at once (the
+			// store announces it); wait briefly for that judgement rather
+			// than show "pending" — never judge here.
+			for wait := 0; d.Verdict.Pending && d.Verdict.Watched && created && wait < verdictWaitSteps; wait++ {
+				select {
+				case <-ctx.Done():
+				case <-time.After(verdictWaitStep):
+				}
+				d.Verdict = s.verdictFor(ctx, stored, created, choice.Label)
+			}
 			d.CheckID = uuid.NewString()
 			keep := map[string]string{"device": d.Values["device"], "field_x": d.Values["field_x"], "field_y": d.Values["field_y"]}
 			d.Values = keep
@@ -389,6 +402,13 @@ func plausibility(chk halfmark.Check, fx, fy *float64) []string {
 	return out
 }
 
+// The morning verdict waits up to verdictWaitSteps × verdictWaitStep (2 s)
+// for the drift engine's evaluation of a just-stored check.
+const (
+	verdictWaitStep  = 50 * time.Millisecond
+	verdictWaitSteps = 40
+)
+
 // verdictFor shows, for each edge, the drift engine's stored evaluation of
 // its series when that evaluation includes this check; otherwise the edge
 // is "evaluation pending". The dashboard judges nothing itself.
@@ -402,6 +422,9 @@ func (s *server) verdictFor(ctx context.Context, st halfmark.StoredCheck, create
 		r := verdictRow{Edge: e.Edge, ValueMM: e.IsoPositionMM, SeriesID: e.SeriesID, Pending: true, Text: "evaluation pending"}
 		if s.d.Evaluations != nil && e.SeriesID != 0 {
 			ev, err := s.d.Evaluations.SeriesEvaluation(ctx, e.SeriesID)
+			if err == nil {
+				v.Watched = true
+			}
 			if err == nil && evaluatedCheck(ev, st.ID) {
 				r.Pending, r.Level, r.DeviationMM = false, ev.Level, ev.DeviationMM
 				r.Text = engineVerdictText(ev.Verdict, ev.Level)

@@ -80,13 +80,18 @@ func (s *server) seriesPage(c echo.Context, status int, form, formErr string) er
 		}
 	}
 	title := d.Beam + " " + ser.Edge + " " + string(ser.Quantity) + " · " + ser.Geometry
-	if d.Chart, err = inlineSVG(valuePlot(withTitle(specFor(v, false, now), title)), vg.Points(720), vg.Points(300), title); err != nil {
-		return s.failErr(c, err)
-	}
-	if v.EWMA != nil {
-		if d.EWMAChart, err = inlineSVG(ewmaPlot(timesOf(pts[v.Start:]), v.EWMA, v.Centre), vg.Points(720), vg.Points(170), "EWMA chart"); err != nil {
+	if ev != nil {
+		// The engine's stored chart, with the value and EWMA panels on one
+		// time axis and corrected points drawn beside their corrections.
+		corrected, err := s.correctedPoints(ctx, ser)
+		if err != nil {
 			return s.failErr(c, err)
 		}
+		if d.Chart, err = seriesChartSVG(ev.Chart, title, corrected); err != nil {
+			return s.failErr(c, err)
+		}
+	} else if d.Chart, err = inlineSVG(valuePlot(withTitle(specFor(v, false, now), title)), vg.Points(720), vg.Points(300), title); err != nil {
+		return s.failErr(c, err)
 	}
 	if d.Baselines, err = s.d.Series.Baselines(ctx, id); err != nil {
 		return s.failErr(c, err)
@@ -212,6 +217,9 @@ func (s *server) alertAction(c echo.Context, resolve bool) error {
 		return s.fail(c, http.StatusNotFound, "There is no alert "+c.Param("id")+".")
 	}
 	comment := strings.TrimSpace(c.FormValue("comment"))
+	if err := halfmark.ValidateComment("comment", comment, false); err != nil {
+		return s.failErr(c, err)
+	}
 	if resolve && comment == "" {
 		return s.fail(c, http.StatusUnprocessableEntity, "Resolving an alert needs a comment that says what was found and done. Go back and add one.")
 	}
