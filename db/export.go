@@ -8,7 +8,6 @@ import (
 	"github.com/jackc/pgx/v5"
 
 	"halfmark"
-	"halfmark/analysis/sheet"
 )
 
 // exportSQL reads checks with their machine name, beam, and each edge
@@ -35,14 +34,14 @@ var exportSQL = `SELECT ` + checkCols + `, m.name, b.energy_mv, b.fff,
 
 // ExportChecks returns every check of the filter (machine, from, to; kind,
 // beam and limit are ignored) with its edges, stored deviations and
-// provenance, for sheet.WriteCSV and sheet.WriteXLSX.
-func (d *DB) ExportChecks(ctx context.Context, f halfmark.CheckFilter) ([]sheet.ExportCheck, error) {
+// provenance, for the spreadsheet export.
+func (d *DB) ExportChecks(ctx context.Context, f halfmark.CheckFilter) ([]halfmark.ExportCheck, error) {
 	rows, err := d.Pool.Query(ctx, exportSQL, f.MachineID, nullTime(f.From), nullTime(f.To))
 	if err != nil {
 		return nil, mapErr(err)
 	}
 	defer rows.Close()
-	var out []sheet.ExportCheck
+	var out []halfmark.ExportCheck
 	for rows.Next() {
 		var c halfmark.Check
 		var kind, machine string
@@ -62,7 +61,7 @@ func (d *DB) ExportChecks(ctx context.Context, f halfmark.CheckFilter) ([]sheet.
 		c.Kind, c.Method = halfmark.CheckKind(kind), halfmark.Method(method)
 		fillDeviations(&o, bn)
 		if n := len(out); n == 0 || out[n-1].Check.ID != c.ID {
-			out = append(out, sheet.ExportCheck{Machine: machine, Beam: halfmark.BeamLabel(energy, fff), Check: halfmark.StoredCheck{Check: c}})
+			out = append(out, halfmark.ExportCheck{Machine: machine, Beam: halfmark.BeamLabel(energy, fff), Check: halfmark.StoredCheck{Check: c}})
 		}
 		x := &out[len(out)-1].Check
 		x.Edges = append(x.Edges, o)

@@ -7,29 +7,29 @@ import (
 	"strconv"
 
 	"halfmark"
-	"halfmark/analysis/sheet"
 )
 
 // importBatch is how many checks one import transaction stores.
 const importBatch = 1000
 
-// ImportChecks groups read rows into checks, resolves machine names and
-// beam labels (creating the missing ones when asked), validates the checks
+// ImportChecks has the source group its rows into checks while it
+// resolves their machine names and beam labels (creating the missing ones
+// when asked), validates the checks
 // against the store and stores them in batches of importBatch checks, one
 // transaction each, through RecordBatch. Re-importing stores nothing new
-// (row-key ids, see sheet.Group); an interrupted import is completed by
+// (row-key ids, see ImportSource.Group); an interrupted import is completed by
 // running it again. With refused rows nothing is stored unless SkipBad;
 // a dry run stores and creates nothing and lists what it would create.
 // The error is set only when storing fails; the report then says how far
 // it got.
-func (d *DB) ImportChecks(ctx context.Context, a halfmark.Actor, res *sheet.Result, opt sheet.ImportOptions) (*sheet.ImportReport, error) {
-	rep := &sheet.ImportReport{Read: res.Read, Machines: map[int64]string{}, Beams: map[int64]string{}}
+func (d *DB) ImportChecks(ctx context.Context, a halfmark.Actor, src halfmark.ImportSource, opt halfmark.ImportOptions) (*halfmark.ImportReport, error) {
+	rep := &halfmark.ImportReport{Read: src.RowsRead(), Machines: map[int64]string{}, Beams: map[int64]string{}}
 	rv := &resolver{d: d, ctx: ctx, actor: a, create: opt.CreateMissing, dry: opt.DryRun, rep: rep}
-	checks, origins, refused := sheet.Group(res.Rows, rv.resolve)
+	checks, origins, refused := src.Group(rv.resolve)
 	if rv.err != nil {
 		return rep, rv.err
 	}
-	refused = append(append([]sheet.Refused{}, res.Refused...), refused...)
+	refused = append(append([]halfmark.ImportRefused{}, src.ReadRefused()...), refused...)
 	// Checks on machines that would be created are validated without the store.
 	var known []int
 	for i := range checks {
@@ -56,7 +56,7 @@ func (d *DB) ImportChecks(ctx context.Context, a halfmark.Actor, res *sheet.Resu
 		for _, f := range he.Fields {
 			m := checkField.FindStringSubmatch(f.Field)
 			if m == nil {
-				refused = append(refused, sheet.Refused{Reason: f.String()})
+				refused = append(refused, halfmark.ImportRefused{Reason: f.String()})
 				continue
 			}
 			j, _ := strconv.Atoi(m[1])
@@ -68,14 +68,14 @@ func (d *DB) ImportChecks(ctx context.Context, a halfmark.Actor, res *sheet.Resu
 		checks[i] = sub[j]
 	}
 	var keep []halfmark.Check
-	var keepO [][]sheet.Origin
+	var keepO [][]halfmark.ImportOrigin
 	for i := range checks {
 		if !bad[i] && (checks[i].MachineID > 0 || opt.DryRun) {
 			keep = append(keep, checks[i])
 			keepO = append(keepO, origins[i])
 		}
 	}
-	sheet.SortRefused(refused)
+	halfmark.SortImportRefused(refused)
 	rep.Checks, rep.Origins, rep.Refused = keep, keepO, refused
 	if (len(refused) > 0 && !opt.SkipBad) || opt.DryRun {
 		return rep, nil
@@ -102,10 +102,10 @@ var checkField = regexp.MustCompile(`^checks\[(\d+)\]\.(?:edges\[(\d+)\]\.)?(.*)
 
 // refusedAt turns a field error of checks[i] back into the row it came
 // from.
-func refusedAt(f halfmark.FieldError, i int, origins [][]sheet.Origin) sheet.Refused {
+func refusedAt(f halfmark.FieldError, i int, origins [][]halfmark.ImportOrigin) halfmark.ImportRefused {
 	m := checkField.FindStringSubmatch(f.Field)
 	if m == nil || i >= len(origins) || len(origins[i]) == 0 {
-		return sheet.Refused{Column: f.Field, Reason: f.Message}
+		return halfmark.ImportRefused{Column: f.Field, Reason: f.Message}
 	}
 	o := origins[i][0]
 	if m[2] != "" {
@@ -113,7 +113,7 @@ func refusedAt(f halfmark.FieldError, i int, origins [][]sheet.Origin) sheet.Ref
 			o = origins[i][j]
 		}
 	}
-	return sheet.Refused{Sheet: o.Sheet, Line: o.Line, Column: m[3], Reason: f.Message}
+	return halfmark.ImportRefused{Sheet: o.Sheet, Line: o.Line, Column: m[3], Reason: f.Message}
 }
 
 // resolver maps machine names and beam labels to ids, creating them when
@@ -124,7 +124,7 @@ type resolver struct {
 	actor  halfmark.Actor
 	create bool
 	dry    bool
-	rep    *sheet.ImportReport
+	rep    *halfmark.ImportReport
 	cache  map[string][2]int64
 	next   int64 // last placeholder id handed out (negative)
 	err    error // a store failure (not a bad row)

@@ -16,8 +16,6 @@ export PATH="/usr/local/go/bin:$PATH"
 KNOWN=(
   # api/bench_test.go: the ingest benchmark's baseline is a raw COPY.
   "halfmark/api -> github.com/jackc/pgx/v5"
-  # db/checks.go projects positions to the isocentre plane (domain work).
-  "halfmark/db -> halfmark/analysis"
   # Tests only: web/harness_test.go mounts the real API beside the dashboard
   # (the served handler, end to end); web's own code imports no api.
   "halfmark/web -> halfmark/api"

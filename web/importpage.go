@@ -20,12 +20,12 @@ import (
 
 // Importer stores read rows through the one import path (db.DB).
 type Importer interface {
-	ImportChecks(ctx context.Context, a halfmark.Actor, res *sheet.Result, opt sheet.ImportOptions) (*sheet.ImportReport, error)
+	ImportChecks(ctx context.Context, a halfmark.Actor, src halfmark.ImportSource, opt halfmark.ImportOptions) (*halfmark.ImportReport, error)
 }
 
 // Exporter reads checks for the download (db.DB).
 type Exporter interface {
-	ExportChecks(ctx context.Context, f halfmark.CheckFilter) ([]sheet.ExportCheck, error)
+	ExportChecks(ctx context.Context, f halfmark.CheckFilter) ([]halfmark.ExportCheck, error)
 }
 
 // maxImportBytes bounds an uploaded log (32 MiB); larger files go through

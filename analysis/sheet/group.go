@@ -10,11 +10,22 @@ import (
 	"halfmark"
 )
 
-// Origin is where an edge result came from.
-type Origin struct {
-	Sheet string
-	Line  int
+// Origin is where an edge result came from (halfmark.ImportOrigin).
+type Origin = halfmark.ImportOrigin
+
+// Group joins the rows read into checks (halfmark.ImportSource), for
+// the store's import.
+func (r *Result) Group(resolve halfmark.ImportResolve) (checks []halfmark.Check, origins [][]Origin, refused []Refused) {
+	return Group(r.Rows, resolve)
 }
+
+var _ halfmark.ImportSource = (*Result)(nil)
+
+// RowsRead is the number of data rows read (halfmark.ImportSource).
+func (r *Result) RowsRead() int { return r.Read }
+
+// ReadRefused are the rows refused while reading (halfmark.ImportSource).
+func (r *Result) ReadRefused() []Refused { return r.Refused }
 
 // Group joins rows into checks. resolve maps a machine name and beam
 // label to ids. Rows that share machine, beam, kind, time, setup, device
@@ -22,7 +33,7 @@ type Origin struct {
 // name-based UUID of that key (RFC 9562 §5.5), so importing the same file
 // twice — long or wide, text or workbook — stores nothing new.
 // origins[i][j] is where edge j of checks[i] came from.
-func Group(rows []Row, resolve func(machine, beam string) (machineID, beamID int64, err error)) (checks []halfmark.Check, origins [][]Origin, refused []Refused) {
+func Group(rows []Row, resolve halfmark.ImportResolve) (checks []halfmark.Check, origins [][]Origin, refused []Refused) {
 	index := map[string]int{}
 	for _, r := range rows {
 		mID, bID, err := resolve(r.Machine, r.Beam)
@@ -59,20 +70,13 @@ func Group(rows []Row, resolve func(machine, beam string) (machineID, beamID int
 				continue
 			}
 			checks[i].Edges = append(checks[i].Edges, e)
-			origins[i] = append(origins[i], Origin{r.Sheet, r.Line})
+			origins[i] = append(origins[i], Origin{Sheet: r.Sheet, Line: r.Line})
 		}
 		if r.Check.Note != "" && checks[i].Note == "" {
 			checks[i].Note = r.Check.Note
 		}
 	}
 	return checks, origins, refused
-}
-
-func (o Origin) String() string {
-	if o.Sheet != "" {
-		return fmt.Sprintf("sheet %q line %d", o.Sheet, o.Line)
-	}
-	return fmt.Sprintf("line %d", o.Line)
 }
 
 // RowKey is the grouping key of a row: its explicit id, or machine name,

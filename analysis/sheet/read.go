@@ -36,26 +36,9 @@ type Row struct {
 	Check   halfmark.Check
 }
 
-// Refused is one row (or sheet) that was not read, and why.
-type Refused struct {
-	Sheet  string
-	Line   int
-	Column string // the column title, or "constant FIELD"; "" for the whole row
-	Reason string
-}
-
-func (r Refused) String() string {
-	var b strings.Builder
-	if r.Sheet != "" {
-		fmt.Fprintf(&b, "sheet %q ", r.Sheet)
-	}
-	fmt.Fprintf(&b, "line %d: ", r.Line)
-	if r.Column != "" {
-		b.WriteString(r.Column + ": ")
-	}
-	b.WriteString(r.Reason)
-	return b.String()
-}
+// Refused is one row (or sheet) that was not read, and why
+// (halfmark.ImportRefused).
+type Refused = halfmark.ImportRefused
 
 // Result is what Read found.
 type Result struct {

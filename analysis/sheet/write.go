@@ -12,12 +12,8 @@ import (
 )
 
 // ExportCheck is one stored check with its machine's name and its beam's
-// label, as the export writes it.
-type ExportCheck struct {
-	Machine string
-	Beam    string
-	Check   halfmark.StoredCheck
-}
+// label, as the export writes it (halfmark.ExportCheck).
+type ExportCheck = halfmark.ExportCheck
 
 // ExportColumns are the columns of the export: the long layout the
 // importer reads (id and supersedes included, so a correction stays a

@@ -9,7 +9,6 @@ import (
 	"strings"
 	"testing"
 
-	"github.com/jackc/pgx/v5"
 	"github.com/xuri/excelize/v2"
 
 	"halfmark"
@@ -214,19 +213,27 @@ func TestDryRunCreateMissingPreviews(t *testing.T) {
 func checkRows(t *testing.T, url string) []string {
 	t.Helper()
 	ctx := context.Background()
-	conn, err := pgx.Connect(ctx, url)
+	d, err := db.Open(ctx, url)
 	if err != nil {
 		t.Fatal(err)
 	}
-	defer conn.Close(ctx)
-	rows, err := conn.Query(ctx, `SELECT concat_ws('|', c.id, m.name, m.sad_cm, b.energy_mv, b.fff, c.kind, c.measured_at AT TIME ZONE 'UTC',
+	defer d.Close()
+	rows, err := d.Pool.Query(ctx, `SELECT concat_ws('|', c.id, m.name, m.sad_cm, b.energy_mv, b.fff, c.kind, c.measured_at AT TIME ZONE 'UTC',
 		c.ssd_cm, c.depth_cm, c.field_x_cm, c.field_y_cm, c.collimator_deg, c.gantry_deg, c.device, c.operator, c.note,
 		c.supersedes, c.edges::text) FROM checks c JOIN machines m ON m.id = c.machine_id JOIN beams b ON b.id = c.beam_id ORDER BY c.id`)
 	if err != nil {
 		t.Fatal(err)
 	}
-	out, err := pgx.CollectRows(rows, pgx.RowTo[string])
-	if err != nil {
+	defer rows.Close()
+	var out []string
+	for rows.Next() {
+		var r string
+		if err := rows.Scan(&r); err != nil {
+			t.Fatal(err)
+		}
+		out = append(out, r)
+	}
+	if err := rows.Err(); err != nil {
 		t.Fatal(err)
 	}
 	return out
