@@ -1,6 +1,7 @@
 package halfmark
 
 import (
+	"errors"
 	"fmt"
 	"sort"
 	"strings"
@@ -55,19 +56,48 @@ func SortImportRefused(rs []ImportRefused) {
 }
 
 // ImportResolve maps a machine name and beam label, as written in an
-// imported file, to stored ids; the store creates missing ones when asked
-// (in a dry run it hands out negative placeholder ids). err refuses the row.
+// imported file, to stored ids; err refuses the row.
 type ImportResolve func(machine, beam string) (machineID, beamID int64, err error)
 
-// ImportSource is what an import stores: rows already read and checked
-// for form. Group joins the rows into checks once the store resolves their
-// machine names and beam labels (a check's id may depend on its beam id,
-// so grouping needs the resolved ids); it is pure apart from calling
-// resolve. origins[i][j] is where edge j of checks[i] came from.
-type ImportSource interface {
-	RowsRead() int                // data rows read, good and refused
-	ReadRefused() []ImportRefused // rows refused while reading
-	Group(resolve ImportResolve) (checks []Check, origins [][]ImportOrigin, refused []ImportRefused)
+// ImportPair is a machine name and a beam label as written in an imported
+// file.
+type ImportPair struct {
+	Machine, Beam string
+}
+
+// ImportResolution is what the store made of the machine names and beam
+// labels of an import: their ids (negative in a dry run: would be
+// created), or why the rows naming them are refused.
+type ImportResolution struct {
+	IDs      map[ImportPair][2]int64 // machine id, beam id
+	Refused  map[ImportPair]string   // reason the rows of the pair are refused
+	Machines map[int64]string        // machine id → name
+	Beams    map[int64]string        // beam id → label
+	Create   []string                // what is (or would be) created: "machine Tern (SAD 100 cm)", "beam Tern 6 MV"
+}
+
+// Resolve is the ImportResolve of the resolution; a pair it does not know
+// is refused.
+func (r *ImportResolution) Resolve(machine, beam string) (int64, int64, error) {
+	p := ImportPair{machine, beam}
+	if ids, ok := r.IDs[p]; ok {
+		return ids[0], ids[1], nil
+	}
+	if why, ok := r.Refused[p]; ok {
+		return 0, 0, errors.New(why)
+	}
+	return 0, 0, fmt.Errorf("machine %q, beam %q was not resolved; resolve every pair of the file first", machine, beam)
+}
+
+// ImportBatch is an import's rows grouped into checks, ready for the
+// store: checks with their machine and beam ids resolved and their ids
+// set, Origins[i][j] where edge j of Checks[i] came from, and the rows
+// refused while reading and grouping.
+type ImportBatch struct {
+	Read    int // data rows read, good and refused
+	Checks  []Check
+	Origins [][]ImportOrigin
+	Refused []ImportRefused
 }
 
 // ImportOptions say how imported rows are stored.

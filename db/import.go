@@ -12,24 +12,42 @@ import (
 // importBatch is how many checks one import transaction stores.
 const importBatch = 1000
 
-// ImportChecks has the source group its rows into checks while it
-// resolves their machine names and beam labels (creating the missing ones
-// when asked), validates the checks
-// against the store and stores them in batches of importBatch checks, one
-// transaction each, through RecordBatch. Re-importing stores nothing new
-// (row-key ids, see ImportSource.Group); an interrupted import is completed by
-// running it again. With refused rows nothing is stored unless SkipBad;
-// a dry run stores and creates nothing and lists what it would create.
-// The error is set only when storing fails; the report then says how far
-// it got.
-func (d *DB) ImportChecks(ctx context.Context, a halfmark.Actor, src halfmark.ImportSource, opt halfmark.ImportOptions) (*halfmark.ImportReport, error) {
-	rep := &halfmark.ImportReport{Read: src.RowsRead(), Machines: map[int64]string{}, Beams: map[int64]string{}}
-	rv := &resolver{d: d, ctx: ctx, actor: a, create: opt.CreateMissing, dry: opt.DryRun, rep: rep}
-	checks, origins, refused := src.Group(rv.resolve)
-	if rv.err != nil {
-		return rep, rv.err
+// ResolveImport resolves the machine names and beam labels of an import
+// (sheet.Pairs), in order, creating the missing ones when asked; in a dry
+// run it creates nothing and gives the ones it would create negative ids.
+// A pair that cannot be resolved is in the resolution's Refused with the
+// reason; the error is set only when the store fails.
+func (d *DB) ResolveImport(ctx context.Context, a halfmark.Actor, pairs []halfmark.ImportPair, opt halfmark.ImportOptions) (*halfmark.ImportResolution, error) {
+	rz := &halfmark.ImportResolution{IDs: map[halfmark.ImportPair][2]int64{}, Refused: map[halfmark.ImportPair]string{},
+		Machines: map[int64]string{}, Beams: map[int64]string{}}
+	rv := &resolver{d: d, ctx: ctx, actor: a, create: opt.CreateMissing, dry: opt.DryRun, rz: rz}
+	for _, p := range pairs {
+		m, b, err := rv.resolve(p.Machine, p.Beam)
+		if rv.err != nil {
+			return rz, rv.err
+		}
+		if err != nil {
+			rz.Refused[p] = err.Error()
+			continue
+		}
+		rz.IDs[p] = [2]int64{m, b}
 	}
-	refused = append(append([]halfmark.ImportRefused{}, src.ReadRefused()...), refused...)
+	return rz, nil
+}
+
+// ImportChecks validates grouped checks (sheet.Result.Batch, with the ids
+// of ResolveImport's resolution rz) against the store and stores them in
+// batches of importBatch checks, one transaction each, through
+// RecordBatch. Re-importing stores nothing new (row-key ids, see
+// sheet.Group); an interrupted import is completed by running it again.
+// With refused rows nothing is stored unless SkipBad; a dry run stores
+// nothing and lists what it would create. The error is set only when
+// storing fails; the report then says how far it got.
+func (d *DB) ImportChecks(ctx context.Context, a halfmark.Actor, in halfmark.ImportBatch, rz *halfmark.ImportResolution, opt halfmark.ImportOptions) (*halfmark.ImportReport, error) {
+	rep := &halfmark.ImportReport{Read: in.Read, Machines: rz.Machines, Beams: rz.Beams, Create: rz.Create}
+	checks := append([]halfmark.Check(nil), in.Checks...)
+	origins := in.Origins
+	refused := append([]halfmark.ImportRefused(nil), in.Refused...)
 	// Checks on machines that would be created are validated without the store.
 	var known []int
 	for i := range checks {
@@ -124,7 +142,7 @@ type resolver struct {
 	actor  halfmark.Actor
 	create bool
 	dry    bool
-	rep    *halfmark.ImportReport
+	rz     *halfmark.ImportResolution
 	cache  map[string][2]int64
 	next   int64 // last placeholder id handed out (negative)
 	err    error // a store failure (not a bad row)
@@ -159,7 +177,7 @@ func (r *resolver) resolve(machine, beam string) (int64, int64, error) {
 				err = r.d.CreateMachine(r.ctx, r.actor, &m)
 			}
 			if err == nil {
-				r.rep.Create = append(r.rep.Create, "machine "+machine+" (SAD 100 cm)")
+				r.rz.Create = append(r.rz.Create, "machine "+machine+" (SAD 100 cm)")
 			}
 		}
 		if err != nil {
@@ -172,7 +190,7 @@ func (r *resolver) resolve(machine, beam string) (int64, int64, error) {
 			return 0, 0, err
 		}
 		r.cache[mkey] = [2]int64{m.ID, 0}
-		r.rep.Machines[m.ID] = machine
+		r.rz.Machines[m.ID] = machine
 	}
 	var bs []halfmark.Beam
 	if m.ID > 0 {
@@ -186,7 +204,7 @@ func (r *resolver) resolve(machine, beam string) (int64, int64, error) {
 	for _, b := range bs {
 		if b.EnergyMV == energy && b.FFF == fff {
 			r.cache[key] = [2]int64{m.ID, b.ID}
-			r.rep.Beams[b.ID] = label
+			r.rz.Beams[b.ID] = label
 			return m.ID, b.ID, nil
 		}
 	}
@@ -202,8 +220,8 @@ func (r *resolver) resolve(machine, beam string) (int64, int64, error) {
 		}
 		return 0, 0, err
 	}
-	r.rep.Create = append(r.rep.Create, "beam "+machine+" "+label)
+	r.rz.Create = append(r.rz.Create, "beam "+machine+" "+label)
 	r.cache[key] = [2]int64{m.ID, b.ID}
-	r.rep.Beams[b.ID] = label
+	r.rz.Beams[b.ID] = label
 	return m.ID, b.ID, nil
 }

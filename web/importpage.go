@@ -18,9 +18,12 @@ import (
 	"halfmark/analysis/sheet"
 )
 
-// Importer stores read rows through the one import path (db.DB).
+// Importer stores read rows through the one import path (db.DB): the
+// store resolves the file's machines and beams, sheet groups the rows into
+// checks with them, the store validates and stores the checks.
 type Importer interface {
-	ImportChecks(ctx context.Context, a halfmark.Actor, src halfmark.ImportSource, opt halfmark.ImportOptions) (*halfmark.ImportReport, error)
+	ResolveImport(ctx context.Context, a halfmark.Actor, pairs []halfmark.ImportPair, opt halfmark.ImportOptions) (*halfmark.ImportResolution, error)
+	ImportChecks(ctx context.Context, a halfmark.Actor, in halfmark.ImportBatch, rz *halfmark.ImportResolution, opt halfmark.ImportOptions) (*halfmark.ImportReport, error)
 }
 
 // Exporter reads checks for the download (db.DB).
@@ -163,8 +166,13 @@ func (s *server) importRun(c echo.Context, f importForm, content []byte, dry boo
 	if err != nil {
 		return s.importError(c, f, "The file cannot be read: "+err.Error())
 	}
-	rep, err := s.d.Import.ImportChecks(c.Request().Context(), user(c).Actor(), res,
-		sheet.ImportOptions{CreateMissing: f.CreateMissing, SkipBad: f.SkipBad, DryRun: dry})
+	ctx, actor := c.Request().Context(), user(c).Actor()
+	iopt := halfmark.ImportOptions{CreateMissing: f.CreateMissing, SkipBad: f.SkipBad, DryRun: dry}
+	rz, err := s.d.Import.ResolveImport(ctx, actor, sheet.Pairs(res.Rows), iopt)
+	if err != nil {
+		return s.failErr(c, err)
+	}
+	rep, err := s.d.Import.ImportChecks(ctx, actor, res.Batch(rz.Resolve), rz, iopt)
 	if err != nil {
 		return s.failErr(c, err)
 	}

@@ -13,19 +13,30 @@ import (
 // Origin is where an edge result came from (halfmark.ImportOrigin).
 type Origin = halfmark.ImportOrigin
 
-// Group joins the rows read into checks (halfmark.ImportSource), for
-// the store's import.
-func (r *Result) Group(resolve halfmark.ImportResolve) (checks []halfmark.Check, origins [][]Origin, refused []Refused) {
-	return Group(r.Rows, resolve)
+// Pairs are the distinct machine names and beam labels of the rows, as
+// written, in the order they first appear: what the store resolves before
+// Batch groups the rows.
+func Pairs(rows []Row) []halfmark.ImportPair {
+	seen := map[halfmark.ImportPair]bool{}
+	var out []halfmark.ImportPair
+	for _, r := range rows {
+		p := halfmark.ImportPair{Machine: r.Machine, Beam: r.Beam}
+		if !seen[p] {
+			seen[p] = true
+			out = append(out, p)
+		}
+	}
+	return out
 }
 
-var _ halfmark.ImportSource = (*Result)(nil)
-
-// RowsRead is the number of data rows read (halfmark.ImportSource).
-func (r *Result) RowsRead() int { return r.Read }
-
-// ReadRefused are the rows refused while reading (halfmark.ImportSource).
-func (r *Result) ReadRefused() []Refused { return r.Refused }
+// Batch groups the rows read into checks (Group) with the store's
+// resolution of their machines and beams, for the store's import; its
+// refused rows are those of reading, then those of grouping.
+func (r *Result) Batch(resolve halfmark.ImportResolve) halfmark.ImportBatch {
+	checks, origins, refused := Group(r.Rows, resolve)
+	return halfmark.ImportBatch{Read: r.Read, Checks: checks, Origins: origins,
+		Refused: append(append([]Refused{}, r.Refused...), refused...)}
+}
 
 // Group joins rows into checks. resolve maps a machine name and beam
 // label to ids. Rows that share machine, beam, kind, time, setup, device

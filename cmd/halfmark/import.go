@@ -97,13 +97,18 @@ func cmdImport(ctx context.Context, e env) error {
 	defer st.Close()
 	actor := halfmark.Actor{Name: "cli:" + operator, Role: halfmark.RoleAdmin}
 	start := time.Now()
-	rep, err := st.ImportChecks(ctx, actor, res, sheet.ImportOptions{CreateMissing: createMissing, DryRun: dryRun, SkipBad: skipBad,
+	iopt := halfmark.ImportOptions{CreateMissing: createMissing, DryRun: dryRun, SkipBad: skipBad,
 		Progress: func(done, total int) {
 			fmt.Fprintf(e.stderr, "\rstoring: %d/%d checks (%.0f%%)", done, total, 100*float64(done)/float64(total))
 			if done == total {
 				fmt.Fprintln(e.stderr)
 			}
-		}})
+		}}
+	rz, err := st.ResolveImport(ctx, actor, sheet.Pairs(res.Rows), iopt)
+	if err != nil {
+		return err
+	}
+	rep, err := st.ImportChecks(ctx, actor, res.Batch(rz.Resolve), rz, iopt)
 	if err != nil {
 		return err
 	}
