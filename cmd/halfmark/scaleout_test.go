@@ -213,6 +213,11 @@ func TestScaleOutTwoAPIsTwoWorkers(t *testing.T) {
 	if l3 != 1 {
 		t.Fatalf("%d alerts on X1 (%d at Level 3), want one Level 3 alert", alerts, l3)
 	}
+	// One fault, one finding, however many workers judged it.
+	fs, err := d.Findings(ctx, halfmark.FindingFilter{State: "all"})
+	if err != nil || len(fs) != 1 || fs[0].Name != "X1" || fs[0].Level != halfmark.LevelImmediate {
+		t.Fatalf("findings %+v (%v); want exactly one, jaw X1 at Level 3", fs, err)
+	}
 	var checks int
 	_ = d.Pool.QueryRow(ctx, `SELECT count(*) FROM checks`).Scan(&checks)
 	if checks != 31 {
@@ -239,5 +244,5 @@ func TestScaleOutTwoAPIsTwoWorkers(t *testing.T) {
 	if evals != evalSlots {
 		t.Fatalf("X1 evaluated %d times in %d distinct runs: a run was doubled", evals, evalSlots)
 	}
-	t.Logf("%d slots run once each by %d worker(s); X1 evaluated %d times; 1 alert, 1 e-mail", slots, workers, evals)
+	t.Logf("%d slots run once each by %d worker(s); X1 evaluated %d times; 1 finding, 1 e-mail", slots, workers, evals)
 }
