@@ -148,6 +148,9 @@ type Finding struct {
 	MagnitudeMM   float64         `json:"magnitude_mm"`
 	MagnitudeCIMM [2]float64      `json:"magnitude_ci_mm"`
 	Onset         *time.Time      `json:"onset"`
+	// Limits are the component's own tolerance and action limit, the ones
+	// its level was judged against (nil: the book sets none).
+	Limits *Limits `json:"limits,omitempty"`
 	Crossing      FindingCrossing `json:"crossing"`
 	Evidence      []Evidence      `json:"evidence"`
 	Message       string          `json:"message"`

@@ -14,7 +14,7 @@ import (
 )
 
 const findingCols = `f.id, f.machine_id, m.name, f.component_kind, f.component, f.direction, f.level, f.state,
-	f.magnitude_mm, f.magnitude_lo_mm, f.magnitude_hi_mm, f.onset, f.crossing, f.evidence, f.cause, f.message,
+	f.magnitude_mm, f.magnitude_lo_mm, f.magnitude_hi_mm, f.onset, f.crossing, f.evidence, f.cause, f.message, f.tolerance_mm, f.action_mm,
 	f.opened_at, f.updated_at, coalesce(f.ack_by, ''), f.ack_at, coalesce(f.ack_comment, ''),
 	coalesce(f.resolved_by, ''), f.resolved_at, coalesce(f.resolve_comment, '')`
 
@@ -25,13 +25,17 @@ func scanFinding(r pgx.Row) (halfmark.Finding, error) {
 	var kind, state string
 	var level int
 	var crossing, evidence, cause []byte
+	var tol, act *float64
 	err := r.Scan(&f.ID, &f.MachineID, &f.Machine, &kind, &f.Name, &f.Direction, &level, &state,
-		&f.MagnitudeMM, &f.MagnitudeCIMM[0], &f.MagnitudeCIMM[1], &f.Onset, &crossing, &evidence, &cause, &f.Message,
+		&f.MagnitudeMM, &f.MagnitudeCIMM[0], &f.MagnitudeCIMM[1], &f.Onset, &crossing, &evidence, &cause, &f.Message, &tol, &act,
 		&f.OpenedAt, &f.UpdatedAt, &f.AckBy, &f.AckAt, &f.AckComment, &f.ResolvedBy, &f.ResolvedAt, &f.ResolveComment)
 	if err != nil {
 		return f, err
 	}
 	f.Kind, f.Level, f.State = halfmark.ComponentKind(kind), halfmark.Level(level), halfmark.FindingState(state)
+	if tol != nil && act != nil {
+		f.Limits = &halfmark.Limits{ToleranceMM: *tol, ActionMM: *act}
+	}
 	if err := json.Unmarshal(crossing, &f.Crossing); err != nil {
 		return f, fmt.Errorf("finding %d: crossing: %w", f.ID, err)
 	}
@@ -464,6 +468,10 @@ func (d *DB) recordComponent(ctx context.Context, tx pgx.Tx, ev *halfmark.Machin
 	if err != nil {
 		return 0, err
 	}
+	var tol, act *float64
+	if f.Limits != nil {
+		tol, act = &f.Limits.ToleranceMM, &f.Limits.ActionMM
+	}
 	var cause []byte
 	if f.Cause != nil {
 		if cause, err = json.Marshal(f.Cause); err != nil {
@@ -472,10 +480,10 @@ func (d *DB) recordComponent(ctx context.Context, tx pgx.Tx, ev *halfmark.Machin
 	}
 	if !exists {
 		err := tx.QueryRow(ctx, `INSERT INTO findings (machine_id, component_kind, component, direction, level, magnitude_mm,
-				magnitude_lo_mm, magnitude_hi_mm, onset, crossing, evidence, cause, message, opened_at, updated_at)
-			VALUES ($1,$2,$3,$4,$5,$6,$7,$8,$9,$10,$11,$12,$13,$14,$14) RETURNING id`,
+				magnitude_lo_mm, magnitude_hi_mm, onset, crossing, evidence, cause, message, opened_at, updated_at, tolerance_mm, action_mm)
+			VALUES ($1,$2,$3,$4,$5,$6,$7,$8,$9,$10,$11,$12,$13,$14,$14,$15,$16) RETURNING id`,
 			ev.MachineID, string(f.Kind), f.Name, f.Direction, int(f.Level), f.MagnitudeMM, f.MagnitudeCIMM[0], f.MagnitudeCIMM[1],
-			f.Onset, crossing, evidence, cause, f.Message, ev.At).Scan(&id)
+			f.Onset, crossing, evidence, cause, f.Message, ev.At, tol, act).Scan(&id)
 		if err != nil {
 			return 0, fmt.Errorf("open the finding of %s: %w", f.Component, err)
 		}
@@ -490,9 +498,10 @@ func (d *DB) recordComponent(ctx context.Context, tx pgx.Tx, ev *halfmark.Machin
 			newState = string(halfmark.FindingOpen) // escalation re-opens an acknowledged finding
 		}
 		if _, err := tx.Exec(ctx, `UPDATE findings SET level = $2, magnitude_mm = $3, magnitude_lo_mm = $4, magnitude_hi_mm = $5,
-				onset = $6, crossing = $7, evidence = $8, cause = $9, message = $10, updated_at = $11, state = $12 WHERE id = $1`,
+				onset = $6, crossing = $7, evidence = $8, cause = $9, message = $10, updated_at = $11, state = $12,
+				tolerance_mm = $13, action_mm = $14 WHERE id = $1`,
 			id, int(f.Level), f.MagnitudeMM, f.MagnitudeCIMM[0], f.MagnitudeCIMM[1], f.Onset, crossing, evidence, cause,
-			f.Message, ev.At, newState); err != nil {
+			f.Message, ev.At, newState, tol, act); err != nil {
 			return 0, fmt.Errorf("update finding %d: %w", id, err)
 		}
 		if escalated {

@@ -114,7 +114,7 @@ func (d *DB) worstFindings(ctx context.Context, out []halfmark.MachineStatus, id
 	rows, err := d.Pool.Query(ctx, `SELECT DISTINCT ON (f.machine_id) f.machine_id, f.id, f.component_kind, f.component, f.level,
 			f.magnitude_mm, f.message, (f.crossing->>'tolerance_date')::timestamptz,
 			coalesce(s.id, 0), coalesce(s.beam_id, 0), b.energy_mv, b.fff, coalesce(s.edge, ''), coalesce(s.quantity, ''),
-			coalesce(s.geometry, ''), st.tolerance_mm, st.action_mm
+			coalesce(s.geometry, ''), coalesce(f.tolerance_mm, st.tolerance_mm), coalesce(f.action_mm, st.action_mm)
 		FROM findings f
 		LEFT JOIN series s ON s.id = (f.evidence->0->>'series_id')::bigint
 		LEFT JOIN beams b ON b.id = s.beam_id

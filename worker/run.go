@@ -132,7 +132,7 @@ func EvaluateMachine(machineID int64, ss []halfmark.SeriesData, book halfmark.To
 	for _, c := range res.Components {
 		f := halfmark.Finding{MachineID: machineID, Component: c.Component, Direction: c.Direction, Level: c.Level,
 			MagnitudeMM: c.MagnitudeMM, MagnitudeCIMM: c.MagnitudeCIMM, Onset: c.Onset, Crossing: c.Crossing,
-			Evidence: c.Evidence, Message: c.Message}
+			Evidence: c.Evidence, Message: c.Message, Limits: c.Limits}
 		if len(ss) > 0 {
 			f.Machine = ss[0].MachineName
 		}
