@@ -145,15 +145,15 @@ type Finding struct {
 	State     FindingState `json:"state"`
 	// MagnitudeMM is the component's change, signed by the edge convention
 	// (positive = outward or wider), with its 95% interval.
-	MagnitudeMM   float64         `json:"magnitude_mm"`
-	MagnitudeCIMM [2]float64      `json:"magnitude_ci_mm"`
-	Onset         *time.Time      `json:"onset"`
+	MagnitudeMM   float64    `json:"magnitude_mm"`
+	MagnitudeCIMM [2]float64 `json:"magnitude_ci_mm"`
+	Onset         *time.Time `json:"onset"`
 	// Limits are the component's own tolerance and action limit, the ones
 	// its level was judged against (nil: the book sets none).
-	Limits *Limits `json:"limits,omitempty"`
-	Crossing      FindingCrossing `json:"crossing"`
-	Evidence      []Evidence      `json:"evidence"`
-	Message       string          `json:"message"`
+	Limits   *Limits         `json:"limits,omitempty"`
+	Crossing FindingCrossing `json:"crossing"`
+	Evidence []Evidence      `json:"evidence"`
+	Message  string          `json:"message"`
 	// Cause is set for penumbra findings: what the change is consistent
 	// with (a larger source, a radiological change, one setup).
 	Cause *PenumbraCause `json:"cause,omitempty"`
