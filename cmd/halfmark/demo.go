@@ -81,7 +81,11 @@ func cmdDemo(ctx context.Context, e env) error {
 		for _, p := range demo.Staff {
 			fmt.Fprintf(e.stdout, "  %-32s password %-22s (%s)\n", p.Email, p.Password, p.Name)
 		}
-		fmt.Fprintln(e.stdout, "Everything shown is invented demo data. Ctrl-C stops the demo; its data stay in", f.db.dataDir)
+		where := f.db.dataDir
+		if f.db.url != "" || e.getenv("DATABASE_URL") != "" {
+			where = "the database given"
+		}
+		fmt.Fprintln(e.stdout, "Everything shown is invented demo data. Ctrl-C stops the demo; its data stay in", where)
 	})
 }
 
