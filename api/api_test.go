@@ -27,6 +27,7 @@ func TestMain(m *testing.M) { dbtest.Main(m) }
 type env struct {
 	t      testing.TB
 	db     *db.DB
+	owner  string // the database URL as its owner (benchmarks create tables)
 	srv    *httptest.Server
 	tokens map[halfmark.Role]string
 	mach   int64
@@ -43,12 +44,13 @@ func newHTTPServer(h http.Handler) *httptest.Server { return httptest.NewServer(
 func newBenchEnv(t testing.TB) *env {
 	t.Helper()
 	ctx := context.Background()
-	d, err := db.Open(ctx, runtimeRoleURL(t, dbtest.New(t)))
+	owner := dbtest.New(t)
+	d, err := db.Open(ctx, runtimeRoleURL(t, owner))
 	if err != nil {
 		t.Fatal(err)
 	}
 	t.Cleanup(d.Close)
-	e := &env{t: t, db: d, tokens: map[halfmark.Role]string{}}
+	e := &env{t: t, db: d, owner: owner, tokens: map[halfmark.Role]string{}}
 	metrics := api.NewMetrics(d)
 	e.srv = newHTTPServer(api.New(api.Services{Machines: d, Checks: d, Series: d, Auth: d, Audit: d, Pinger: d, Raw: d, Metrics: metrics, Penumbra: d}))
 	t.Cleanup(e.srv.Close)

@@ -175,5 +175,13 @@ func (w *Worker) evaluateOnWrite(ctx context.Context, l halfmark.CheckListener) 
 				w.cfg.Observe(JobOnWrite, time.Since(start))
 			}
 		}
+		// A finding that opened or escalated has its notification in the
+		// outbox now: send it at once rather than at the next delivery slot
+		// (rows are claimed with SKIP LOCKED, so this never doubles a send).
+		if w.cfg.Deliver != nil && len(ids) > 0 {
+			if _, err := w.cfg.Deliver(ctx); err != nil {
+				w.log.Error("delivery after evaluation on write failed; the scheduled delivery will retry", "err", err)
+			}
+		}
 	}
 }
