@@ -58,6 +58,24 @@ type Component struct {
 	Name string        `json:"component"`
 }
 
+// Label names a component as a physicist says it: "jaw Y2", "MLC bank 2",
+// "leaf B2P29", "penumbra of 6 MV FFF", "light field X1".
+func (c Component) Label() string {
+	switch c.Kind {
+	case ComponentJaw:
+		return "jaw " + c.Name
+	case ComponentMLCBank:
+		return "MLC " + c.Name
+	case ComponentMLCLeaf:
+		return "leaf " + c.Name
+	case ComponentPenumbra:
+		return "penumbra of " + c.Name
+	case ComponentLightField:
+		return "light field " + c.Name
+	}
+	return strings.TrimSpace(string(c.Kind) + " " + c.Name)
+}
+
 // String is "jaw Y2", "mlc_bank bank 2", …
 func (c Component) String() string { return string(c.Kind) + " " + c.Name }
 

@@ -45,7 +45,7 @@ func machineComponents(views []seriesView, beams []halfmark.Beam) []componentOpt
 				continue
 			}
 			seen[c] = true
-			out = append(out, componentOption{Value: string(c.Kind) + "|" + c.Name, Label: componentLabel(c)})
+			out = append(out, componentOption{Value: string(c.Kind) + "|" + c.Name, Label: c.Label()})
 		}
 	}
 	slices.SortFunc(out, func(a, b componentOption) int { return strings.Compare(a.Label, b.Label) })

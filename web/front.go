@@ -204,7 +204,7 @@ func tableRows(rows []frontRow) template.HTML {
 			w(` <a href="/findings/`)
 			b.Write(strconv.AppendInt(num[:0], f.ID, 10))
 			w(`">`)
-			esc(componentLabel(f.Component))
+			esc(f.Component.Label())
 			w(`</a> <span class="num">`)
 			esc(signed(f.MagnitudeMM))
 			w(` mm</span> <small class="muted">`)
@@ -224,24 +224,6 @@ func tableRows(rows []frontRow) template.HTML {
 		w("</td></tr>\n")
 	}
 	return template.HTML(b.String())
-}
-
-// componentLabel names a component as a physicist does: "jaw Y2", "MLC
-// bank 2", "leaf B2P29", "penumbra of 6 MV FFF", "light field X1".
-func componentLabel(c halfmark.Component) string {
-	switch c.Kind {
-	case halfmark.ComponentJaw:
-		return "jaw " + c.Name
-	case halfmark.ComponentMLCBank:
-		return "MLC " + c.Name
-	case halfmark.ComponentMLCLeaf:
-		return "leaf " + c.Name
-	case halfmark.ComponentPenumbra:
-		return "penumbra of " + c.Name
-	case halfmark.ComponentLightField:
-		return "light field " + c.Name
-	}
-	return c.String()
 }
 
 // crossingText says when a finding's trend reaches its tolerance, with a

@@ -125,7 +125,7 @@ var funcs = template.FuncMap{
 	},
 	"glyphSymbols": func() template.HTML { return glyphSymbols },
 	"verdictWords": verdictWords,
-	"component":    componentLabel,
+	"component":    halfmark.Component.Label,
 	"crossing":     crossingText,
 	"allows":       func(u *halfmark.User, r string) bool { return u != nil && u.Role.Allows(halfmark.Role(r)) },
 }

@@ -109,7 +109,7 @@ func TestDailyDigestListsLevel1FindingsOnce(t *testing.T) {
 	}
 	idOf := map[string]int64{}
 	for _, f := range fs {
-		idOf[f.Machine+" "+componentLabel(f.Component)] = f.ID
+		idOf[f.Machine+" "+f.Component.Label()] = f.ID
 	}
 	heronLeaf, ternJaw := idOf["Heron leaf B1P23"], idOf["Tern jaw Y2"]
 	body := m.Body(t)

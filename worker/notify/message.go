@@ -16,7 +16,7 @@ const SafetyCaution = "Halfmark's results support, and never replace, the judgem
 
 // findingSubject is "[Halfmark] Level 2 — scheduled action: Heron MLC bank 2".
 func findingSubject(f halfmark.Finding) string {
-	return "[Halfmark] " + f.Level.String() + ": " + machineName(f) + " " + componentLabel(f.Component)
+	return "[Halfmark] " + f.Level.String() + ": " + machineName(f) + " " + f.Component.Label()
 }
 
 // levelMeaning is what a level asks of the physicist, after the three
@@ -43,10 +43,10 @@ func levelMeaning(l halfmark.Level) string {
 func findingBody(f halfmark.Finding, cfg Config) string {
 	loc := cfg.loc()
 	var b strings.Builder
-	fmt.Fprintf(&b, "%s on %s: %s.\n\n", f.Level, machineName(f), componentLabel(f.Component))
+	fmt.Fprintf(&b, "%s on %s: %s.\n\n", f.Level, machineName(f), f.Component.Label())
 	row := func(k, v string) { fmt.Fprintf(&b, "%-12s %s\n", k+":", v) }
 	row("Machine", machineName(f))
-	row("Component", componentLabel(f.Component))
+	row("Component", f.Component.Label())
 	row("Level", f.Level.String()+" ("+levelMeaning(f.Level)+")")
 	row("Magnitude", magnitudeText(f))
 	row("Onset", onsetText(f.Onset, loc))
@@ -122,7 +122,7 @@ func digestBody(day string, fs []halfmark.Finding, cfg Config) string {
 	fmt.Fprintf(&b, "Daily digest for %s: %d %s at %s, open or acknowledged.\n", day, len(fs), plural(len(fs), "finding", "findings"), halfmark.LevelInspect)
 	b.WriteString("Level 1 findings are " + levelMeaning(halfmark.LevelInspect) + ".\n\n")
 	for i, f := range fs {
-		fmt.Fprintf(&b, "%d. %s, %s (finding %d, %s)\n", i+1, machineName(f), componentLabel(f.Component), f.ID, f.State)
+		fmt.Fprintf(&b, "%d. %s, %s (finding %d, %s)\n", i+1, machineName(f), f.Component.Label(), f.ID, f.State)
 		fmt.Fprintf(&b, "   Magnitude: %s\n", magnitudeText(f))
 		fmt.Fprintf(&b, "   Onset: %s\n", onsetText(f.Onset, loc))
 		fmt.Fprintf(&b, "   Crossing: %s\n", crossingText(f.Crossing, loc))
@@ -153,24 +153,6 @@ func dashboardLine(cfg Config, what, path string) string {
 		return what + ": open the Halfmark dashboard (no dashboard URL is configured).\n"
 	}
 	return what + ": " + strings.TrimRight(cfg.DashboardURL, "/") + path + "\n"
-}
-
-// componentLabel names a component as people say it: "jaw Y2", "MLC bank
-// 2", "leaf B2P29", "penumbra of 6 MV FFF", "light field X1".
-func componentLabel(c halfmark.Component) string {
-	switch c.Kind {
-	case halfmark.ComponentJaw:
-		return "jaw " + c.Name
-	case halfmark.ComponentMLCBank:
-		return "MLC " + c.Name
-	case halfmark.ComponentMLCLeaf:
-		return "leaf " + c.Name
-	case halfmark.ComponentPenumbra:
-		return "penumbra of " + c.Name
-	case halfmark.ComponentLightField:
-		return "light field " + c.Name
-	}
-	return strings.TrimSpace(string(c.Kind) + " " + c.Name)
 }
 
 // magnitudeText is "+0.90 mm outward (95% interval +0.72 to +1.08 mm)";

@@ -21,8 +21,8 @@ func TestComponentLabels(t *testing.T) {
 		{halfmark.Component{Kind: halfmark.ComponentPenumbra, Name: "6 MV FFF"}, "penumbra of 6 MV FFF"},
 		{halfmark.Component{Kind: halfmark.ComponentLightField, Name: "X1"}, "light field X1"},
 	} {
-		if got := componentLabel(c.comp); got != c.want {
-			t.Errorf("componentLabel(%v) = %q, want %q", c.comp, got, c.want)
+		if got := c.comp.Label(); got != c.want {
+			t.Errorf("%v.Label() = %q, want %q", c.comp, got, c.want)
 		}
 	}
 }
