@@ -7,7 +7,6 @@ import (
 	"time"
 
 	"halfmark"
-	"halfmark/db"
 	"halfmark/db/dbtest"
 )
 
@@ -104,11 +103,21 @@ func TestStoreCore(t *testing.T) {
 	if err != nil || len(vs) != 2 || vs[0].Evaluated {
 		t.Fatalf("verdicts before evaluation: %+v %v; want two, pending", vs, err)
 	}
-	es, err := d.LoadEvalSeries(ctx, []int64{x1.ID}, time.Now())
-	if err != nil || len(es) != 1 {
-		t.Fatalf("LoadEvalSeries: %v", err)
+	loaded, err := d.LoadMachineSeries(ctx, x1.MachineID, time.Now())
+	if err != nil {
+		t.Fatalf("LoadMachineSeries: %v", err)
 	}
-	if err := d.RecordEvaluations(ctx, []db.Evaluation{{Series: es[0], At: time.Now(), ToleranceHash: "h", Level: halfmark.LevelScheduled, Rule: "beyond tolerance"}}, nil); err != nil {
+	var sv []halfmark.SeriesVerdict
+	for _, s := range loaded {
+		if s.ID == x1.ID {
+			sv = append(sv, halfmark.SeriesVerdict{Series: s, Evaluation: halfmark.SeriesEvaluation{SeriesID: s.ID,
+				Level: halfmark.LevelScheduled, Verdict: halfmark.VerdictSignal, Rule: "beyond tolerance"}})
+		}
+	}
+	if len(sv) != 1 {
+		t.Fatalf("series %d not loaded with its machine", x1.ID)
+	}
+	if err := d.RecordMachineEvaluation(ctx, &halfmark.MachineEvaluation{MachineID: x1.MachineID, At: time.Now(), ToleranceHash: "h", Series: sv}, nil); err != nil {
 		t.Fatal(err)
 	}
 	vs, err = d.CheckVerdicts(ctx, fixed.ID)
