@@ -318,6 +318,11 @@ type engineView struct {
 	From, To  time.Time
 	Compact   bool
 	Corrected []correctedPoint
+	// Trend is the engine's drift line (drawn when significant); Crossing,
+	// when set and the view is not a fixed window, extends it to the
+	// projected tolerance crossing.
+	Trend    *halfmark.SeriesTrend
+	Crossing *time.Time
 }
 
 // chartRange is the x range of an engine chart: the view's window, or the
@@ -364,6 +369,14 @@ func enginePlot(ch halfmark.SeriesChart, v engineView) *plot.Plot {
 	p.X.Tick.Marker = plot.TimeTicks{Format: dateTick}
 	p.BackgroundColor = color.White
 	x0, x1 := chartRange(ch, v)
+	trendTo := time.Time{}
+	if tr := v.Trend; tr != nil && tr.Significant {
+		trendTo = tr.To
+		if v.Crossing != nil && v.From.IsZero() && v.Crossing.After(trendTo) {
+			trendTo = *v.Crossing
+			x1 = math.Max(x1, unix(trendTo))
+		}
+	}
 	band := func(lo, hi *float64, c color.Color) {
 		if lo == nil || hi == nil {
 			return
@@ -404,6 +417,20 @@ func enginePlot(ch halfmark.SeriesChart, v engineView) *plot.Plot {
 	if len(ch.Points) > 0 {
 		hline(&centre, inkColour, nil, vg.Points(1))
 		grow(&centre)
+	}
+	if tr := v.Trend; !trendTo.IsZero() {
+		// The line the engine fitted, y = FromMM + slope·(t − From),
+		// clipped to the chart's x range.
+		perSec := tr.SlopePer30dMM / 30 / 86400
+		a, b := math.Max(unix(tr.From), x0), math.Min(unix(trendTo), x1)
+		if b > a {
+			ya, yb := tr.FromMM+perSec*(a-unix(tr.From)), tr.FromMM+perSec*(b-unix(tr.From))
+			if l, err := plotter.NewLine(plotter.XYs{{X: a, Y: ya}, {X: b, Y: yb}}); err == nil {
+				l.Color, l.Width, l.Dashes = trendColour, vg.Points(1.2), []vg.Length{vg.Points(1), vg.Points(2)}
+				p.Add(l)
+				grow(&ya, &yb)
+			}
+		}
 	}
 	var xy, sig plotter.XYs
 	for _, pt := range ch.Points {
@@ -615,8 +642,8 @@ var absBars = regexp.MustCompile(`\|[−+-]?[0-9]+(?:\.[0-9]+)?\|`)
 // chart: the value panel and, when the engine stored EWMA statistics, the
 // EWMA panel below it on the same time axis (one SVG, panels aligned by
 // plot.Align). Superseded values are drawn as corrected.
-func seriesChartSVG(ch halfmark.SeriesChart, title string, corrected []correctedPoint) (template.HTML, error) {
-	v := engineView{Title: title, Corrected: corrected}
+func seriesChartSVG(ch halfmark.SeriesChart, title string, corrected []correctedPoint, trend *halfmark.SeriesTrend, crossing *time.Time) (template.HTML, error) {
+	v := engineView{Title: title, Corrected: corrected, Trend: trend, Crossing: crossing}
 	plots := []*plot.Plot{enginePlot(ch, v)}
 	h := vg.Points(300)
 	if e := engineEWMAPlot(ch, v); e != nil {

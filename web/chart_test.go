@@ -58,7 +58,34 @@ func TestStackedPanelsShareTimeAxis(t *testing.T) {
 	if !strings.Contains(joined, "2025-12") || !strings.Contains(joined, "2026-01") {
 		t.Errorf("tick labels %q lack the year", joined)
 	}
-	if _, err := seriesChartSVG(ch, "X1 position", []correctedPoint{{t0.AddDate(0, 0, 3), 5}}); err != nil {
+	if _, err := seriesChartSVG(ch, "X1 position", []correctedPoint{{t0.AddDate(0, 0, 3), 5}}, nil, nil); err != nil {
 		t.Fatal(err)
+	}
+}
+
+// The engine's drift line is drawn from its stored ends and, on a series
+// page, carried on to the projected crossing: the x axis reaches the
+// crossing and the y axis the line's value there, FromMM + slope·Δt
+// (analytic: 50 mm + 3 mm/30 d × 60 d = 56 mm).
+func TestTrendLineReachesTheCrossing(t *testing.T) {
+	t0 := time.Date(2026, 1, 5, 8, 0, 0, 0, time.UTC)
+	var ch halfmark.SeriesChart
+	ch.Centre = 50
+	for i := range 30 {
+		ch.Points = append(ch.Points, halfmark.ChartPoint{Time: t0.AddDate(0, 0, i), ValueMM: 50 + 0.1*float64(i)})
+	}
+	cross := t0.AddDate(0, 0, 60)
+	tr := &halfmark.SeriesTrend{From: t0, To: t0.AddDate(0, 0, 29), FromMM: 50, ToMM: 52.9, SlopePer30dMM: 3, Significant: true}
+	p := enginePlot(ch, engineView{Trend: tr, Crossing: &cross})
+	if p.X.Max < unix(cross) {
+		t.Errorf("x axis ends at %v, before the crossing %v", p.X.Max, unix(cross))
+	}
+	if p.Y.Max < 56-1e-9 {
+		t.Errorf("y axis ends at %.3f mm, below the line's 56 mm at the crossing", p.Y.Max)
+	}
+	// A trend that is not significant draws nothing and leaves the axes.
+	q := enginePlot(ch, engineView{Trend: &halfmark.SeriesTrend{From: t0, To: t0.AddDate(0, 0, 29), FromMM: 50, SlopePer30dMM: 3}, Crossing: &cross})
+	if q.X.Max >= unix(cross) || q.Y.Max >= 56 {
+		t.Errorf("a non-significant trend moved the axes to %v, %v", q.X.Max, q.Y.Max)
 	}
 }

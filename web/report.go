@@ -837,7 +837,11 @@ func (r *Reporter) charts(p *report, d *reportData) error {
 					}
 					rowTop = rowBottom
 				}
-				png, err := pngChart(enginePlot(ch, engineView{From: d.From, To: d.To, Compact: true}), vg.Points(255), vg.Points(150))
+				view := engineView{From: d.From, To: d.To, Compact: true}
+				if ev != nil {
+					view.Trend = ev.Trend
+				}
+				png, err := pngChart(enginePlot(ch, view), vg.Points(255), vg.Points(150))
 				if err != nil {
 					return err
 				}

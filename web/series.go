@@ -87,7 +87,7 @@ func (s *server) seriesPage(c echo.Context, status int, form, formErr string) er
 		if err != nil {
 			return s.failErr(c, err)
 		}
-		if d.Chart, err = seriesChartSVG(ev.Chart, title, corrected); err != nil {
+		if d.Chart, err = seriesChartSVG(ev.Chart, title, corrected, ev.Trend, v.Crossing); err != nil {
 			return s.failErr(c, err)
 		}
 	} else if d.Chart, err = inlineSVG(valuePlot(withTitle(specFor(v, false, now), title)), vg.Points(720), vg.Points(300), title); err != nil {
