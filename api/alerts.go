@@ -76,6 +76,13 @@ func (h *handlers) resolveAlert(c echo.Context) error {
 
 // alertAction moves an alert through its lifecycle with the caller's comment.
 func (h *handlers) alertAction(c echo.Context, act func(context.Context, halfmark.Actor, int64, string) (halfmark.Alert, error)) error {
+	return lifecycleAction(c, act)
+}
+
+// lifecycleAction serves a POST that moves an alert or a finding through
+// its lifecycle: the path id, a strict {"comment"} body checked as free
+// text (the service also requires it when resolving), the moved record.
+func lifecycleAction[T any](c echo.Context, act func(context.Context, halfmark.Actor, int64, string) (T, error)) error {
 	id, err := pathID(c, "id")
 	if err != nil {
 		return err
@@ -87,9 +94,9 @@ func (h *handlers) alertAction(c echo.Context, act func(context.Context, halfmar
 	if err := halfmark.ValidateComment("comment", req.Comment, false); err != nil {
 		return err
 	}
-	al, err := act(c.Request().Context(), actor(c), id, req.Comment)
+	out, err := act(c.Request().Context(), actor(c), id, req.Comment)
 	if err != nil {
 		return err
 	}
-	return c.JSON(http.StatusOK, al)
+	return c.JSON(http.StatusOK, out)
 }

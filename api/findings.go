@@ -69,19 +69,7 @@ func (h *handlers) resolveFinding(c echo.Context) error {
 }
 
 func (h *handlers) findingAction(c echo.Context, act func(context.Context, halfmark.Actor, int64, string) (halfmark.Finding, error)) error {
-	id, err := pathID(c, "id")
-	if err != nil {
-		return err
-	}
-	var req alertComment
-	if err := decodeJSON(c, &req); err != nil {
-		return err
-	}
-	f, err := act(c.Request().Context(), actor(c), id, req.Comment)
-	if err != nil {
-		return err
-	}
-	return c.JSON(http.StatusOK, f)
+	return lifecycleAction(c, act)
 }
 
 // SeriesChartDocument is the answer of GET /api/v1/series/{id}/chart: the

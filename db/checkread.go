@@ -30,21 +30,28 @@ func scanCheck(r pgx.Row) (halfmark.Check, error) {
 const baselineAt = `LEFT JOIN LATERAL (SELECT value_mm FROM baselines b WHERE b.series_id = %[1]s.id AND b.valid_from <= c.measured_at
 	ORDER BY b.valid_from DESC, b.version DESC LIMIT 1) %[2]s ON true`
 
+// edgeOutcomeJoins unfolds each check c's edges (er, in stored order n)
+// with their position and penumbra series (sp, sn: same machine, beam,
+// geometry and method) and the baselines in force at the check's time (bp,
+// bn). The check read and the export share it.
+var edgeOutcomeJoins = `CROSS JOIN LATERAL ROWS FROM (jsonb_to_recordset(c.edges)
+		AS (edge text, position_mm float8, iso_position_mm float8, penumbra_mm float8, light_position_mm float8,
+			iso_light_position_mm float8)) WITH ORDINALITY
+		AS er(edge, position_mm, iso_position_mm, penumbra_mm, light_position_mm, iso_light_position_mm, n)
+	LEFT JOIN series sp ON sp.machine_id = c.machine_id AND sp.beam_id = c.beam_id AND sp.geometry = c.geometry AND sp.method = c.method
+		AND sp.edge = er.edge AND sp.quantity = 'position'
+	LEFT JOIN series sn ON sn.machine_id = c.machine_id AND sn.beam_id = c.beam_id AND sn.geometry = c.geometry AND sn.method = c.method
+		AND sn.edge = er.edge AND sn.quantity = 'penumbra'
+	` + fmt.Sprintf(baselineAt, "sp", "bp") + `
+	` + fmt.Sprintf(baselineAt, "sn", "bn")
+
+// edgeOutcomeCols are the columns edgeOutcomeJoins provides, as scanned.
+const edgeOutcomeCols = `er.edge, er.position_mm, er.iso_position_mm, er.penumbra_mm, er.light_position_mm,
+	er.iso_light_position_mm, coalesce(sp.id, 0), bp.value_mm, bn.value_mm`
+
 // edgeOutcomesSQL reads a check's edges with their position series and
 // the position and penumbra baselines in force at the check's time.
-var edgeOutcomesSQL = `SELECT er.edge, er.position_mm, er.iso_position_mm, er.penumbra_mm, er.light_position_mm,
-			er.iso_light_position_mm, coalesce(sp.id, 0), bp.value_mm, bn.value_mm
-		FROM checks c CROSS JOIN LATERAL ROWS FROM (jsonb_to_recordset(c.edges)
-			AS (edge text, position_mm float8, iso_position_mm float8, penumbra_mm float8, light_position_mm float8,
-				iso_light_position_mm float8)) WITH ORDINALITY
-			AS er(edge, position_mm, iso_position_mm, penumbra_mm, light_position_mm, iso_light_position_mm, n)
-		LEFT JOIN series sp ON sp.machine_id = c.machine_id AND sp.beam_id = c.beam_id AND sp.geometry = c.geometry AND sp.method = c.method
-			AND sp.edge = er.edge AND sp.quantity = 'position'
-		LEFT JOIN series sn ON sn.machine_id = c.machine_id AND sn.beam_id = c.beam_id AND sn.geometry = c.geometry AND sn.method = c.method
-			AND sn.edge = er.edge AND sn.quantity = 'penumbra'
-		` + fmt.Sprintf(baselineAt, "sp", "bp") + `
-		` + fmt.Sprintf(baselineAt, "sn", "bn") + `
-		WHERE c.id = $1 ORDER BY er.n`
+var edgeOutcomesSQL = `SELECT ` + edgeOutcomeCols + ` FROM checks c ` + edgeOutcomeJoins + ` WHERE c.id = $1 ORDER BY er.n`
 
 // Check implements halfmark.CheckService.
 func (d *DB) Check(ctx context.Context, id string) (halfmark.StoredCheck, error) {

@@ -3,7 +3,6 @@ package db
 import (
 	"context"
 	"encoding/json"
-	"fmt"
 
 	"github.com/jackc/pgx/v5"
 
@@ -14,20 +13,9 @@ import (
 // with the position and penumbra baselines in force at the check's time,
 // oldest stored first (an original before its correction), one row per
 // edge in stored order.
-var exportSQL = `SELECT ` + checkCols + `, m.name, b.energy_mv, b.fff,
-		er.edge, er.position_mm, er.iso_position_mm, er.penumbra_mm, er.light_position_mm, er.iso_light_position_mm,
-		coalesce(sp.id, 0), bp.value_mm, bn.value_mm
+var exportSQL = `SELECT ` + checkCols + `, m.name, b.energy_mv, b.fff, ` + edgeOutcomeCols + `
 	FROM checks c JOIN machines m ON m.id = c.machine_id JOIN beams b ON b.id = c.beam_id
-	CROSS JOIN LATERAL ROWS FROM (jsonb_to_recordset(c.edges)
-		AS (edge text, position_mm float8, iso_position_mm float8, penumbra_mm float8, light_position_mm float8,
-			iso_light_position_mm float8)) WITH ORDINALITY
-		AS er(edge, position_mm, iso_position_mm, penumbra_mm, light_position_mm, iso_light_position_mm, n)
-	LEFT JOIN series sp ON sp.machine_id = c.machine_id AND sp.beam_id = c.beam_id AND sp.geometry = c.geometry AND sp.method = c.method
-		AND sp.edge = er.edge AND sp.quantity = 'position'
-	LEFT JOIN series sn ON sn.machine_id = c.machine_id AND sn.beam_id = c.beam_id AND sn.geometry = c.geometry AND sn.method = c.method
-		AND sn.edge = er.edge AND sn.quantity = 'penumbra'
-	` + fmt.Sprintf(baselineAt, "sp", "bp") + `
-	` + fmt.Sprintf(baselineAt, "sn", "bn") + `
+	` + edgeOutcomeJoins + `
 	WHERE ($1 = 0 OR c.machine_id = $1) AND ($2::timestamptz IS NULL OR c.measured_at >= $2)
 		AND ($3::timestamptz IS NULL OR c.measured_at < $3)
 	ORDER BY c.created_at, c.supersedes IS NOT NULL, c.measured_at, c.id, er.n`
