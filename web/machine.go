@@ -1,6 +1,7 @@
 package web
 
 import (
+	"fmt"
 	"html/template"
 	"math"
 	"net/http"
@@ -60,7 +61,8 @@ type pairRow struct {
 }
 
 // bankRow summarises an MLC bank's newest leaf positions against their
-// baselines.
+// baselines; its level is that of the bank's active finding (the drift
+// engine judges the bank mean, never this page).
 type bankRow struct {
 	Bank         int
 	Leaves       int
@@ -69,6 +71,7 @@ type bankRow struct {
 	WorstEdge    string
 	WorstSeries  int64
 	Level        halfmark.Level
+	FindingID    int64
 	WithBaseline int
 }
 
@@ -144,7 +147,7 @@ func (s *server) machine(c echo.Context) error {
 			g := groups[geom]
 			sort.Slice(g.Jaws, func(i, j int) bool { return jawOrder[g.Jaws[i].V.S.Edge] < jawOrder[g.Jaws[j].V.S.Edge] })
 			g.Pairs = pairs(g.Jaws)
-			g.Banks = banks(views, b.ID, geom)
+			g.Banks = banks(views, b.ID, geom, data.Findings)
 			bb.Groups = append(bb.Groups, *g)
 		}
 		data.Beams = append(data.Beams, bb)
@@ -218,7 +221,7 @@ func pairs(jaws []chartBox) []pairRow {
 
 // banks summarises MLC leaf-end position series of one beam and geometry
 // by bank.
-func banks(views []seriesView, beamID int64, geom string) []bankRow {
+func banks(views []seriesView, beamID int64, geom string, findings []halfmark.Finding) []bankRow {
 	var out []bankRow
 	for bank := 1; bank <= 2; bank++ {
 		r := bankRow{Bank: bank}
@@ -232,9 +235,6 @@ func banks(views []seriesView, beamID int64, geom string) []bankRow {
 				continue
 			}
 			r.Leaves++
-			if v.Level > r.Level {
-				r.Level = v.Level
-			}
 			if v.Deviation == nil {
 				continue
 			}
@@ -242,6 +242,11 @@ func banks(views []seriesView, beamID int64, geom string) []bankRow {
 			sum += *v.Deviation
 			if a := math.Abs(*v.Deviation); a >= r.MaxAbsDevMM {
 				r.MaxAbsDevMM, r.WorstEdge, r.WorstSeries = a, v.S.Edge, v.S.ID
+			}
+		}
+		for _, f := range findings {
+			if f.Kind == halfmark.ComponentMLCBank && f.Name == fmt.Sprintf("bank %d", bank) && f.Level > r.Level {
+				r.Level, r.FindingID = f.Level, f.ID
 			}
 		}
 		if r.Leaves == 0 {
